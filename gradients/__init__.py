@@ -1,0 +1,67 @@
+"""gradients: which environmental gradients line up with turnover in biological communities.
+
+The one place users import from. Names are loaded on first use, so ``import gradients`` and the
+command line start fast even though the stages pull in geopandas, statsmodels and numba.
+
+Stages, in the order data flows through them (each imports only from those before it)::
+
+    data -> distance -> ordination -> permutation -> fitting, matrix, ranking, partition -> report
+"""
+
+from __future__ import annotations
+
+import importlib
+from typing import Any
+
+from ._errors import InputError
+
+__version__ = "0.1.0"
+
+# public name -> subpackage that defines it
+_EXPORTS: dict[str, str] = {
+    # data
+    "Survey": "data",
+    "read_survey": "data",
+    "demo_survey": "data",
+    # distance
+    "DistanceMatrix": "distance",
+    "dissimilarity": "distance",
+    "environmental_distance": "distance",
+    "geographic_distance": "distance",
+    "transform_community": "distance",
+    "transform_environment": "distance",
+    # ordination
+    "pcoa": "ordination",
+    "nmds": "ordination",
+    "pca": "ordination",
+    # permutation engine
+    "permutation_plan": "permutation",
+    "permutation_test": "permutation",
+    # fitting
+    "fit_vectors": "fitting",
+    "fit_factors": "fitting",
+    "fit_surface": "fitting",
+    # matrix
+    "mantel": "matrix",
+    "partial_mantel": "matrix",
+    "mantel_correlogram": "matrix",
+    "matrix_regression": "matrix",
+    "distance_decay": "matrix",
+}
+
+__all__ = ["InputError", "__version__", *_EXPORTS]
+
+
+def __getattr__(name: str) -> Any:
+    try:
+        stage = _EXPORTS[name]
+    except KeyError:
+        raise AttributeError(f"module 'gradients' has no attribute {name!r}") from None
+    module = importlib.import_module(f"gradients.{stage}")
+    value = getattr(module, name)
+    globals()[name] = value
+    return value
+
+
+def __dir__() -> list[str]:
+    return sorted(__all__)
