@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import itertools
 import numbers
 from collections.abc import Callable
 from dataclasses import dataclass
@@ -193,11 +194,7 @@ def permutation_test(
                 parts.append(_evaluate(statistic, plan, i))
                 note(i + 1)
         else:
-            from joblib import Parallel, delayed
-
-            parts = list(Parallel(n_jobs=n_jobs, backend=backend)(
-                delayed(_evaluate)(statistic, plan, i) for i in range(nb)))
-            note(nb)
+            parts = _run_parallel(statistic, plan, n_jobs, backend, note)
         null = np.concatenate([_as_rows(p, obs_vec.size) for p in parts], axis=0)
 
     counts = count_extreme(null, obs_vec, alternative, center=center)
@@ -219,6 +216,34 @@ def permutation_test(
         stopped_early=bool(stopped[0]) if scalar else stopped,
         description=plan.description,
     )
+
+
+def _evaluate_many(statistic: Statistic, plan: PermutationPlan,
+                   indices: range) -> list[np.ndarray]:
+    return [_evaluate(statistic, plan, i) for i in indices]
+
+
+def _run_parallel(statistic: Statistic, plan: PermutationPlan, n_jobs: int, backend: str,
+                  note: Callable[[int], None]) -> list[np.ndarray]:
+    """Evaluate all batches on several workers, in order.
+
+    Batches are grouped into a few contiguous chunks per worker, so that the statistic (which
+    may hold large arrays) is sent to each worker a few times rather than once per batch.
+    """
+    from joblib import Parallel, delayed, effective_n_jobs
+
+    workers = max(1, effective_n_jobs(n_jobs))
+    nb = plan.n_batches
+    n_chunks = min(nb, 4 * workers)
+    edges = np.linspace(0, nb, n_chunks + 1).round().astype(int)
+    chunks = [range(int(a), int(b)) for a, b in itertools.pairwise(edges) if b > a]
+    parts: list[np.ndarray] = []
+    runner = Parallel(n_jobs=workers, backend=backend, return_as="generator")
+    for chunk, values in zip(chunks, runner(delayed(_evaluate_many)(statistic, plan, c)
+                                            for c in chunks), strict=True):
+        parts.extend(values)
+        note(chunk.stop)
+    return parts
 
 
 def _as_rows(values: np.ndarray, m: int) -> np.ndarray:
