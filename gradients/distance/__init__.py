@@ -1,5 +1,21 @@
 """Distance stage: dissimilarities, transforms, geographic distance, the DistanceMatrix type."""
 
+from ._dissimilarity import METRICS, dissimilarity, extend_dissimilarity, gower_distance
+from ._environment import environmental_distance
+from ._geographic import geographic_distance
 from ._matrix import DistanceMatrix, as_distance_matrix
+from ._transforms import TransformResult, transform_community, transform_environment
 
-__all__ = ["DistanceMatrix", "as_distance_matrix"]
+__all__ = [
+    "METRICS",
+    "DistanceMatrix",
+    "TransformResult",
+    "as_distance_matrix",
+    "dissimilarity",
+    "environmental_distance",
+    "extend_dissimilarity",
+    "geographic_distance",
+    "gower_distance",
+    "transform_community",
+    "transform_environment",
+]

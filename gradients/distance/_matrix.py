@@ -2,13 +2,16 @@
 
 from __future__ import annotations
 
+import numbers
 from collections.abc import Sequence
 
 import numpy as np
 import pandas as pd
+import scipy.linalg
 from scipy.spatial.distance import squareform
 
 from .._errors import InputError, format_items
+from .._validation import RNGLike, check_rng
 
 __all__ = ["DistanceMatrix", "as_distance_matrix"]
 
@@ -164,6 +167,9 @@ class DistanceMatrix:
         condensed = squareform((array + array.T) / 2.0, checks=False)
         return cls(condensed, labels, metric=metric, transform=transform, dtype=dtype)
 
+    #: Same as :meth:`from_square`; the name that reads naturally for a labelled DataFrame.
+    from_frame = from_square
+
     # ----------------------------------------------------------------- access
     @property
     def labels(self) -> pd.Index:
@@ -272,6 +278,138 @@ class DistanceMatrix:
         """A copy stored as ``dtype`` (float64 or float32)."""
         return DistanceMatrix(self._condensed, self._labels, metric=self.metric,
                               transform=self.transform, dtype=dtype, validate=False)
+
+    # ----------------------------------------------------------------- properties
+    def is_metric(
+        self,
+        *,
+        sample: int | None = None,
+        rng: RNGLike = None,
+        atol: float | None = None,
+    ) -> bool:
+        """Whether every triple of sites obeys the triangle inequality.
+
+        Checks ``d[i, j] <= d[i, k] + d[k, j] + atol`` for all triples when ``n`` is at most
+        ``EXACT_METRIC_LIMIT`` (500) and `sample` is None, otherwise for `sample` random triples
+        (100,000 when `sample` is None).
+
+        Parameters
+        ----------
+        sample : int, optional
+            Number of random triples to check instead of all of them. A sampled check can
+            only prove that the matrix is *not* metric; ``True`` means no violation was found.
+        rng : int, numpy.random.Generator or None
+            Source of the sampled triples. When `rng` is None, a new `numpy.random.Generator`
+            is created using entropy from the operating system.
+        atol : float, optional
+            Slack allowed for rounding. Default ``8 * eps * max(d)`` for the storage type
+            (float64 or float32).
+
+        Returns
+        -------
+        bool
+
+        Notes
+        -----
+        A metric dissimilarity satisfies the triangle inequality; Bray-Curtis, Kulczynski and
+        Morisita-Horn, among others, need not (Legendre & Legendre 2012, section 7.2 [1]_).
+
+        References
+        ----------
+        .. [1] Legendre, P. & Legendre, L. (2012). Numerical Ecology, 3rd English ed.
+               Elsevier, Amsterdam.
+        """
+        n = self.n
+        if n < 3:
+            return True
+        values = self._condensed
+        top = float(values.max()) if values.size else 0.0
+        if atol is None:
+            atol = 8.0 * float(np.finfo(self.dtype).eps) * max(top, 1.0)
+        elif not (np.isfinite(atol) and atol >= 0):
+            raise InputError(f"`atol` must be a non-negative number; got {atol!r}.")
+        if sample is None and n <= EXACT_METRIC_LIMIT:
+            d = self.square().astype(np.float64, copy=False)
+            for k in range(n):
+                # all (i, j) through the intermediate site k at once
+                if np.any(d > d[:, k : k + 1] + d[k : k + 1, :] + atol):
+                    return False
+            return True
+        if sample is None:
+            sample = 100_000
+        if not isinstance(sample, numbers.Integral) or isinstance(sample, bool) or sample < 1:
+            raise InputError(f"`sample` must be a positive integer; got {sample!r}.")
+        gen = check_rng(rng)
+        done = 0
+        while done < sample:
+            m = min(int(sample) - done, 1_000_000)
+            i, j, k = (gen.integers(0, n, size=m) for _ in range(3))
+            keep = (i != j) & (j != k) & (i != k)
+            i, j, k = i[keep], j[keep], k[keep]
+            dij, dik, dkj = self._lookup(i, j), self._lookup(i, k), self._lookup(k, j)
+            if np.any(dij > dik + dkj + atol):
+                return False
+            done += m
+        return True
+
+    def is_euclidean(self, *, tol: float | None = None) -> bool:
+        """Whether the sites can be placed in a Euclidean space with these distances.
+
+        True when no eigenvalue of Gower's centred matrix ``G = -1/2 J D^2 J`` (``J`` the
+        centring matrix) is below ``-tol * max|eigenvalue|``.
+
+        Parameters
+        ----------
+        tol : float, optional
+            Relative tolerance for rounding; default 1e-8 for float64 storage and 1e-5 for
+            float32.
+
+        Returns
+        -------
+        bool
+
+        Notes
+        -----
+        Gower (1966) [1]_: a distance matrix is Euclidean exactly when ``G`` is positive
+        semi-definite, which is also when a principal coordinate analysis has no negative
+        eigenvalues. The eigenvalues are computed here with :func:`scipy.linalg.eigh`, which costs
+        ``O(n^3)``: about a minute for ``n = 5000``.
+
+        References
+        ----------
+        .. [1] Gower, J. C. (1966). Some distance properties of latent root and vector methods
+               used in multivariate analysis. Biometrika 53, 325-338.
+        """
+        if tol is None:
+            tol = 1e-8 if self.dtype == np.dtype(np.float64) else 1e-5
+        elif not (np.isfinite(tol) and tol >= 0):
+            raise InputError(f"`tol` must be a non-negative number; got {tol!r}.")
+        eig = gower_eigenvalues(self)
+        if eig.size == 0:
+            return True
+        scale = float(np.max(np.abs(eig)))
+        if scale == 0.0:
+            return True
+        return bool(eig[0] >= -tol * scale)
+
+    def _lookup(self, i: np.ndarray, j: np.ndarray) -> np.ndarray:
+        """Entries ``d[i, j]`` for index arrays with ``i != j``."""
+        lo, hi = np.minimum(i, j), np.maximum(i, j)
+        n = self.n
+        pos = n * lo - lo * (lo + 1) // 2 + (hi - lo - 1)
+        return self._condensed[pos].astype(np.float64, copy=False)
+
+
+EXACT_METRIC_LIMIT = 500
+
+
+def gower_eigenvalues(d: DistanceMatrix) -> np.ndarray:
+    """Eigenvalues, ascending, of Gower's centred matrix ``-1/2 J D^2 J`` (Gower 1966)."""
+    a = d.square().astype(np.float64, copy=False)
+    a = -0.5 * a * a
+    a -= a.mean(axis=0, keepdims=True)
+    a -= a.mean(axis=1, keepdims=True)
+    return scipy.linalg.eigh(a, eigvals_only=True, overwrite_a=True, check_finite=False)
 
 
 def _check_entries(values: np.ndarray, labels: pd.Index) -> None:
