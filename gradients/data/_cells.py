@@ -1,0 +1,157 @@
+"""Reading the cells of a table: numbers, missing values, values below a detection limit, text.
+
+Every cell of an input table is put in one of four kinds before any rule is applied, so the rules
+(abundances must be numbers, environmental columns are numeric or categorical, censored values
+follow an explicit policy) are written once and give the same messages for files and for
+DataFrames already in memory.
+"""
+
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+__all__ = [
+    "CENSORED",
+    "MISSING",
+    "MISSING_TOKENS",
+    "NUMBER",
+    "TEXT",
+    "ParsedColumn",
+    "looks_like_decimal_comma",
+    "parse_column",
+]
+
+MISSING, NUMBER, CENSORED, TEXT = 0, 1, 2, 3
+
+#: Cell text read as a missing value (compared after stripping spaces, case-insensitive).
+MISSING_TOKENS = frozenset({"", "na", "n/a", "nan", "null", "none", "#n/a", "-"})
+
+_NUMBER = r"[+-]?(?:\d+(?:[.,]\d*)?|[.,]\d+)(?:[eE][+-]?\d+)?"
+_CENSORED_RE = re.compile(rf"^<\s*({_NUMBER})$")
+_DECIMAL_COMMA_RE = re.compile(r"^[+-]?\d*,\d+$")
+_DECIMAL_POINT_RE = re.compile(r"^[+-]?\d*\.\d+$")
+_NON_DETECT_WORDS = re.compile(
+    r"^(<\s*)?(nd|n\.d\.|bdl|lod|<lod|dl|<dl|loq|<loq|bd|trace|tr|below detection.*)$", re.I
+)
+
+
+@dataclass(frozen=True)
+class ParsedColumn:
+    """One column read cell by cell.
+
+    ``values`` holds the number for NUMBER cells and the detection limit for CENSORED cells
+    (NaN elsewhere); ``kinds`` holds MISSING, NUMBER, CENSORED or TEXT per cell; ``text`` the
+    stripped cell text (for messages and categorical columns).
+    """
+
+    values: np.ndarray
+    kinds: np.ndarray
+    text: np.ndarray
+
+    def count(self, kind: int) -> int:
+        return int(np.count_nonzero(self.kinds == kind))
+
+
+def looks_like_decimal_comma(cells: pd.DataFrame) -> bool:
+    """True if text cells use a decimal comma (``0,5``) and none use a decimal point.
+
+    Only called for files whose delimiter is not a comma, where "0,5" cannot be two fields.
+    """
+    has_comma = False
+    for column in cells.columns:
+        text = cells[column].astype("string").str.strip().str.lstrip("<").str.strip()
+        text = text.dropna()
+        if text.str.match(_DECIMAL_POINT_RE.pattern).any():
+            return False
+        has_comma = has_comma or bool(text.str.match(_DECIMAL_COMMA_RE.pattern).any())
+    return has_comma
+
+
+def _to_float(text: str, decimal_comma: bool) -> float:
+    if decimal_comma:
+        text = text.replace(",", ".")
+    elif "," in text:
+        raise ValueError(text)
+    return float(text)
+
+
+def parse_column(column: pd.Series, *, decimal_comma: bool = False) -> ParsedColumn:
+    """Sort the cells of one column into missing, number, censored (``<0.5``) and text.
+
+    Numbers already held as numbers (from a DataFrame or a spreadsheet) are kept; booleans are
+    text (they are labels, not measurements); non-finite numbers (``inf``) are text so that they
+    are reported rather than analysed.
+    """
+    n = len(column)
+    values = np.full(n, np.nan)
+    kinds = np.full(n, TEXT, dtype=np.int8)
+    text = np.empty(n, dtype=object)
+
+    if pd.api.types.is_bool_dtype(column.dtype):
+        raw = column.astype(object).to_numpy()
+    elif pd.api.types.is_numeric_dtype(column.dtype):
+        numbers = column.to_numpy(dtype=float, na_value=np.nan)
+        finite = np.isfinite(numbers)
+        missing = np.isnan(numbers)
+        values[finite] = numbers[finite]
+        kinds[finite] = NUMBER
+        kinds[missing] = MISSING
+        text[:] = [str(v) for v in column.astype(object)]
+        text[missing] = ""
+        return ParsedColumn(values, kinds, text)
+    else:
+        raw = column.astype(object).to_numpy()
+
+    for i, cell in enumerate(raw):
+        if cell is None or (isinstance(cell, float) and np.isnan(cell)) or cell is pd.NA:
+            kinds[i] = MISSING
+            text[i] = ""
+            continue
+        if isinstance(cell, bool | np.bool_):
+            text[i] = str(cell)
+            continue
+        if isinstance(cell, int | float | np.integer | np.floating):
+            v = float(cell)
+            text[i] = str(cell)
+            if np.isfinite(v):
+                values[i] = v
+                kinds[i] = NUMBER
+            continue
+        s = str(cell).strip()
+        text[i] = s
+        if s.lower() in MISSING_TOKENS:
+            kinds[i] = MISSING
+            continue
+        match = _CENSORED_RE.match(s)
+        try:
+            if match:
+                v = _to_float(match.group(1), decimal_comma)
+                kind = CENSORED
+            else:
+                v = _to_float(s, decimal_comma)
+                kind = NUMBER
+        except ValueError:
+            continue
+        if np.isfinite(v):
+            values[i] = v
+            kinds[i] = kind
+    return ParsedColumn(values, kinds, text)
+
+
+def non_detect_hint(texts: list[str]) -> str:
+    """A hint for text cells that look like a non-detect written without its limit."""
+    if any(_NON_DETECT_WORDS.match(t) for t in texts):
+        return (
+            " Values below a detection limit must carry the limit, written like '<0.5', so that "
+            "a censored-value policy can be applied (see `censored=`)."
+        )
+    if any(t.startswith(">") for t in texts):
+        return (
+            " Values above an upper reporting limit ('>1000') are not supported; write the "
+            "reported value or leave the cell empty and choose a `missing=` policy."
+        )
+    return ""
