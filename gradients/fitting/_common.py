@@ -1,0 +1,220 @@
+"""Pieces shared by the three fits: aligning tables, building plans, running tests, adjusting."""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+from .._errors import InputError, format_items
+from .._validation import check_choice, check_labels_match
+from ..permutation import permutation_plan, permutation_test, seed_sequence
+
+__all__ = [
+    "ADJUST_METHODS",
+    "MISSING_RULES",
+    "Design",
+    "TestOutcome",
+    "adjust_pvalues",
+    "align_table",
+    "check_weights",
+    "missing_masks",
+    "run_by_pattern",
+]
+
+ADJUST_METHODS = ("holm", "fdr_bh")
+MISSING_RULES = ("error", "complete")
+
+
+def align_table(table: object, sites: pd.Index, *, name: str) -> pd.DataFrame:
+    """``table`` (DataFrame or named Series) reordered to ``sites``, after a label check."""
+    if isinstance(table, pd.Series):
+        table = table.to_frame(name=table.name if table.name is not None else "value")
+    if not isinstance(table, pd.DataFrame):
+        raise InputError(f"`{name}` must be a pandas DataFrame (or Series) indexed by site "
+                         f"label; got {type(table).__name__}.")
+    if table.index.has_duplicates:
+        dup = table.index[table.index.duplicated()].unique()
+        raise InputError(f"Site labels in `{name}` are repeated: {format_items(dup)}.",
+                         sites=list(dup))
+    if table.shape[1] == 0:
+        raise InputError(f"`{name}` has no columns to fit.")
+    check_labels_match(sites, table.index, left_name="`scores`", right_name=f"`{name}`",
+                       fix=f"Give `{name}` one row for every site of the ordination (drop the "
+                           "extra sites, or subset the scores).")
+    return table.loc[sites]
+
+
+def check_weights(weights: object, sites: pd.Index) -> np.ndarray | None:
+    """Site weights as a positive float array in site order (None stays None)."""
+    if weights is None:
+        return None
+    if isinstance(weights, pd.Series):
+        check_labels_match(sites, weights.index, left_name="`scores`", right_name="`weights`",
+                           fix="Give one weight per site, indexed by site label.")
+        w = weights.loc[sites].to_numpy(dtype=np.float64)
+    else:
+        w = np.asarray(weights, dtype=np.float64)
+        if w.shape != (len(sites),):
+            raise InputError(f"`weights` must give one weight per site: got shape {w.shape} "
+                             f"for {len(sites)} sites.")
+    bad = ~np.isfinite(w) | (w <= 0)
+    if bad.any():
+        raise InputError(f"`weights` must be positive and finite; not so for site(s) "
+                         f"{format_items(sites[bad])}.", sites=list(sites[bad]))
+    return w
+
+
+@dataclass(frozen=True)
+class Design:
+    """The restricted-permutation design, kept in site order so it can be subset."""
+
+    n_sites: int
+    scheme: str | None
+    strata: np.ndarray | None
+    blocks: np.ndarray | None
+    shape: tuple[int, int] | None
+
+    @classmethod
+    def build(cls, sites: pd.Index, *, scheme: str | None, strata: object, blocks: object,
+              shape: tuple[int, int] | None) -> Design:
+        return cls(n_sites=len(sites), scheme=scheme, strata=_labels(strata, sites, "strata"),
+                   blocks=_labels(blocks, sites, "blocks"),
+                   shape=tuple(shape) if shape is not None else None)  # type: ignore[arg-type]
+
+    def plan(self, keep: np.ndarray | None, *, n_resamples: int, rng: object,
+             batch_size: int | None = None):
+        """The engine's plan on all sites, or on the sites ``keep`` (complete cases)."""
+        n, strata, blocks = self.n_sites, self.strata, self.blocks
+        if keep is not None and not keep.all():
+            if self.scheme in ("toroidal", "blocks"):
+                raise InputError(f"scheme={self.scheme!r} needs every site: it cannot be used "
+                                 "with missing='complete' when a column has missing values.")
+            n = int(keep.sum())
+            strata = strata[keep] if strata is not None else None
+            blocks = blocks[keep] if blocks is not None else None
+        scheme = self.scheme if self.scheme is not None else (
+            "strata" if strata is not None else "free")
+        return permutation_plan(n, scheme, strata=strata, shape=self.shape, blocks=blocks,
+                                n_resamples=n_resamples, rng=rng, batch_size=batch_size)
+
+
+def _labels(values: object, sites: pd.Index, name: str) -> np.ndarray | None:
+    if values is None:
+        return None
+    if isinstance(values, pd.Series):
+        check_labels_match(sites, values.index, left_name="`scores`", right_name=f"`{name}`",
+                           fix=f"Give `{name}` one label per site, indexed by site label.")
+        out = values.loc[sites]
+    else:
+        out = pd.Series(list(values) if not isinstance(values, np.ndarray) else values)
+        if len(out) != len(sites):
+            raise InputError(f"`{name}` must give one label per site: {len(out)} labels for "
+                             f"{len(sites)} sites.")
+    if out.isna().any():
+        bad = sites[out.isna().to_numpy()]
+        raise InputError(f"`{name}` is missing for site(s) {format_items(bad)}.",
+                         sites=list(bad))
+    return out.to_numpy(dtype=object)
+
+
+@dataclass(frozen=True)
+class TestOutcome:
+    """Per-column results of one or several engine runs."""
+
+    statistic: np.ndarray
+    pvalue: np.ndarray
+    null: np.ndarray
+    n_resamples: np.ndarray
+    exact: bool
+    scheme: str
+    description: str
+
+
+Factory = Callable[[np.ndarray, np.ndarray], Callable[[np.ndarray], np.ndarray]]
+
+
+def run_by_pattern(
+    factory: Factory,
+    masks: np.ndarray,
+    design: Design,
+    *,
+    n_resamples: int,
+    rng: object,
+    alternative: str,
+    n_jobs: int,
+    batch_size: int | None = None,
+) -> TestOutcome:
+    """Test every column, grouping columns that share the same set of usable sites.
+
+    ``masks`` is a boolean (n_sites, m) array of usable sites per column; ``factory(keep,
+    columns)`` returns the batched statistic for those columns on the sites ``keep``. Columns
+    with the same sites are tested together in one engine run; separate groups get independent
+    random streams spawned from one root seed. Null distributions of different lengths (possible
+    only with exact enumeration on different subsets) are padded with NaN.
+    """
+    m = masks.shape[1]
+    patterns: dict[bytes, list[int]] = {}
+    for j in range(m):
+        patterns.setdefault(masks[:, j].tobytes(), []).append(j)
+    groups = list(patterns.values())
+    if len(groups) == 1:
+        seeds: Sequence[object] = [rng]
+    else:
+        seeds = seed_sequence(rng).spawn(len(groups))
+    stat = np.empty(m)
+    pval = np.empty(m)
+    used = np.empty(m, dtype=np.int64)
+    nulls: list[tuple[list[int], np.ndarray]] = []
+    exact_all = True
+    scheme = description = ""
+    for cols, seed in zip(groups, seeds, strict=True):
+        keep = masks[:, cols[0]]
+        plan = design.plan(keep, n_resamples=n_resamples, rng=seed, batch_size=batch_size)
+        res = permutation_test(factory(keep, np.asarray(cols)), plan, alternative=alternative,
+                               n_jobs=n_jobs, backend="threading", task="fitting permutations")
+        stat[cols] = np.atleast_1d(res.statistic)
+        pval[cols] = np.atleast_1d(res.pvalue)
+        used[cols] = np.atleast_1d(res.n_resamples)
+        null = res.null_distribution
+        nulls.append((cols, null.reshape(null.shape[0], -1)))
+        exact_all &= res.exact
+        scheme, description = res.scheme, res.description
+    length = max(v.shape[0] for _, v in nulls)
+    null_all = np.full((length, m), np.nan)
+    for cols, v in nulls:
+        null_all[: v.shape[0], cols] = v
+    return TestOutcome(stat, pval, null_all, used, exact_all, scheme, description)
+
+
+def adjust_pvalues(pvalues: np.ndarray, adjust: str | None) -> np.ndarray:
+    """Multiplicity adjustment across the tested columns (statsmodels ``multipletests``)."""
+    if adjust is None:
+        return np.asarray(pvalues, dtype=np.float64).copy()
+    check_choice("adjust", adjust, ADJUST_METHODS)
+    from statsmodels.stats.multitest import multipletests
+
+    p = np.asarray(pvalues, dtype=np.float64)
+    out = np.full(p.shape, np.nan)
+    ok = np.isfinite(p)
+    if ok.any():
+        out[ok] = multipletests(p[ok], method=adjust)[1]
+    return out
+
+
+def missing_masks(values: pd.DataFrame, missing: str, *, what: str) -> np.ndarray:
+    """Usable-site mask per column; with ``missing='error'`` refuse any gap, naming it."""
+    check_choice("missing", missing, MISSING_RULES)
+    isna = values.isna().to_numpy()
+    if missing == "error" and isna.any():
+        parts = []
+        for j in np.flatnonzero(isna.any(axis=0)):
+            sites = values.index[isna[:, j]]
+            parts.append(f"{values.columns[j]!r} at site(s) {format_items(sites)}")
+        raise InputError(f"{what} values are missing: " + "; ".join(parts) + ". Fill them, drop "
+                         "those sites, or pass missing='complete' to use the complete cases of "
+                         "each column (n then varies by column).",
+                         columns=[values.columns[j] for j in np.flatnonzero(isna.any(axis=0))])
+    return ~isna
