@@ -1,0 +1,180 @@
+"""The ``gradients`` command line.
+
+::
+
+    gradients demo --out DIR [--force] [--permutations N] [--seed S]
+    gradients init DIR
+    gradients check FILE | --community C --environment E [--locations L] [--site-column S]
+    gradients run FILE [--out DIR] [--force]
+    gradients --version
+
+The command line only parses arguments and calls :mod:`gradients.report`. Problems with the
+input print one message to stderr and exit with status 2; unexpected errors exit with status 1
+and a hint. Long permutation runs show a progress bar when stderr is a terminal.
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+import time
+from collections.abc import Sequence
+from typing import Any
+
+from . import __version__
+from ._errors import InputError
+
+__all__ = ["main"]
+
+EXIT_OK, EXIT_BUG, EXIT_INPUT = 0, 1, 2
+
+
+def _parser() -> argparse.ArgumentParser:
+    p = argparse.ArgumentParser(
+        prog="gradients",
+        description="Which environmental gradients line up with turnover in biological "
+                    "communities: permutation statistics and a report folder of tables, "
+                    "figures and an HTML report.",
+    )
+    p.add_argument("--version", action="version", version=f"gradients {__version__}")
+    sub = p.add_subparsers(dest="command", metavar="COMMAND")
+
+    demo = sub.add_parser("demo", help="run the whole job on the bundled demo data",
+                          description="Run the whole job on the bundled, invented Corvanne "
+                                      "Basin survey and write its report folder.")
+    demo.add_argument("--out", required=True, metavar="DIR", help="report folder to write")
+    demo.add_argument("--force", action="store_true",
+                      help="replace an existing report folder (only once the new one is done)")
+    demo.add_argument("--permutations", type=int, default=None, metavar="N",
+                      help="permutations per test (default 999)")
+    demo.add_argument("--seed", type=int, default=1, metavar="S", help="random seed (default 1)")
+
+    init = sub.add_parser("init", help="write a template project with the demo data",
+                          description="Write a commented, runnable project file and a copy of "
+                                      "the demo data into a new folder.")
+    init.add_argument("folder", metavar="DIR", help="new (or empty) folder")
+
+    check = sub.add_parser("check", help="validate a project file or tables",
+                           description="Validate a project file (or tables given with "
+                                       "--community/--environment/--locations) and print "
+                                       "what would be analysed.")
+    check.add_argument("project", nargs="?", metavar="FILE", help="project file (TOML)")
+    check.add_argument("--community", metavar="FILE")
+    check.add_argument("--environment", metavar="FILE")
+    check.add_argument("--locations", metavar="FILE")
+    check.add_argument("--site-column", default="site", metavar="NAME")
+    check.add_argument("--crs", default=None, metavar="CRS")
+    check.add_argument("--below-detection", default="error", metavar="POLICY",
+                       help="error, half-limit, limit, zero or ros")
+
+    run = sub.add_parser("run", help="run a project file and write its report folder",
+                         description="Run the analyses of a project file and write the "
+                                     "report folder.")
+    run.add_argument("project", metavar="FILE", help="project file (TOML)")
+    run.add_argument("--out", default=None, metavar="DIR",
+                     help="report folder (default: `output.folder` of the project file)")
+    run.add_argument("--force", action="store_true",
+                     help="replace an existing report folder (only once the new one is done)")
+    return p
+
+
+def _progress() -> Any:
+    from .permutation import TerminalProgress, report_progress
+
+    return report_progress(TerminalProgress(sys.stderr))
+
+
+def _cmd_demo(args: argparse.Namespace) -> int:
+    from .report import run_demo
+    from .report._demo import DEMO_PERMUTATIONS
+
+    n = args.permutations if args.permutations is not None else DEMO_PERMUTATIONS
+    if n < 1:
+        raise InputError(f"--permutations must be a positive whole number; got {n}.")
+    if args.seed < 0:
+        raise InputError(f"--seed must be zero or a positive whole number; got {args.seed}.")
+    start = time.perf_counter()
+    with _progress():
+        folder = run_demo(args.out, force=args.force, n_resamples=n, seed=args.seed)
+    print(f"Demo report written to {folder} in {time.perf_counter() - start:.0f} s.")
+    print(f"Open {folder / 'report.html'} in a web browser.")
+    return EXIT_OK
+
+
+def _cmd_init(args: argparse.Namespace) -> int:
+    from .report import init_project
+
+    project = init_project(args.folder)
+    print(f"Template project written to {project.parent}.")
+    print(f"Check it with:  gradients check {project}")
+    print(f"Run it with:    gradients run {project}")
+    return EXIT_OK
+
+
+def _cmd_check(args: argparse.Namespace) -> int:
+    from .report._check import check_project, check_tables, describe
+
+    if args.project is not None:
+        if args.community or args.environment or args.locations:
+            raise InputError("Give either a project file or --community/--environment "
+                             "(/--locations), not both.")
+        survey, project = check_project(args.project)
+    else:
+        if not (args.community and args.environment):
+            raise InputError("Give a project file, or at least --community and --environment "
+                             "tables to check.")
+        survey, project = check_tables(args.community, args.environment, args.locations,
+                                       site_column=args.site_column, crs=args.crs,
+                                       censored=args.below_detection)
+    print(describe(survey, project))
+    return EXIT_OK
+
+
+def _cmd_run(args: argparse.Namespace) -> int:
+    from .report import run_project
+
+    start = time.perf_counter()
+    with _progress():
+        folder = run_project(args.project, out=args.out, force=args.force)
+    print(f"Report written to {folder} in {time.perf_counter() - start:.0f} s.")
+    print(f"Open {folder / 'report.html'} in a web browser.")
+    return EXIT_OK
+
+
+COMMANDS = {"demo": _cmd_demo, "init": _cmd_init, "check": _cmd_check, "run": _cmd_run}
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    """Run the command line with ``argv`` (default ``sys.argv[1:]``); return the exit status."""
+    parser = _parser()
+    try:
+        args = parser.parse_args(argv)
+    except SystemExit as exc:  # --help, --version, or a usage error (argparse prints it)
+        return int(exc.code) if isinstance(exc.code, int) else EXIT_INPUT
+    if args.command is None:
+        parser.print_help(sys.stderr)
+        return EXIT_INPUT
+    try:
+        return COMMANDS[args.command](args)
+    except InputError as exc:
+        print(f"gradients {args.command}: {exc}", file=sys.stderr)
+        return EXIT_INPUT
+    except KeyboardInterrupt:
+        print("gradients: interrupted; no report folder was written.", file=sys.stderr)
+        return 130
+    except Exception as exc:
+        print(f"gradients {args.command}: unexpected error: {type(exc).__name__}: {exc}\n"
+              "This is a bug in gradients, not a problem with your data. Please report it "
+              "with the command you ran; set GRADIENTS_DEBUG=1 to see the full traceback.",
+              file=sys.stderr)
+        import os
+
+        if os.environ.get("GRADIENTS_DEBUG"):
+            import traceback
+
+            traceback.print_exc()
+        return EXIT_BUG
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

@@ -1,0 +1,128 @@
+"""The demo job and the template project written by ``gradients init``."""
+
+from __future__ import annotations
+
+import shutil
+from pathlib import Path
+from typing import Any
+
+from .._errors import InputError
+from ._project import project_from_dict
+from ._run import analyse, write_report
+from ._writers import OutputFolder
+
+__all__ = ["DEMO_HYPOTHESES", "DEMO_PERMUTATIONS", "init_project", "project_template",
+           "run_demo"]
+
+#: Default permutations of the demo (and of the template project).
+DEMO_PERMUTATIONS = 999
+
+#: The demo's named hypotheses: two planted gradients and one group of variables that the
+#: generator makes inert (pH, organic matter) or only a nuisance (conductivity).
+DEMO_HYPOTHESES: dict[str, tuple[str, ...]] = {
+    "contamination": ("Cu", "Zn", "Pb", "Cd"),
+    "texture": ("sand", "silt", "clay"),
+    "water_and_organic": ("pH", "organic_matter", "conductivity"),
+}
+
+
+def project_template(*, data_folder: str = "data", permutations: int = DEMO_PERMUTATIONS,
+                     seed: int = 1) -> str:
+    """The text of a commented, runnable project file for the demo data."""
+    return f'''# gradients project file (TOML). Every key is described in docs/project-file.md.
+# Run it with:   gradients check project.toml   then   gradients run project.toml
+# Relative paths are read from the folder holding this file.
+
+title = "Corvanne Basin invertebrate survey (invented demo data)"
+
+[inputs]
+community = "{data_folder}/community.csv"      # sites x taxa counts, one row per site
+environment = "{data_folder}/environment.csv"  # sites x variables; "<0.2" = below detection
+locations = "{data_folder}/locations.gpkg"     # site points (GeoPackage, GeoJSON, CSV + crs)
+site_column = "site"                  # the column with the site IDs in every table
+below_detection = "ros"               # "error", "half-limit", "limit", "zero" or "ros"
+missing = "error"                     # empty cells: "error", "drop-sites", "drop-variables"
+unmatched_sites = "error"             # "error" or "keep-shared"
+
+[community]
+transform = "none"                    # "none", "relative", "hellinger", "wisconsin", "log1p",
+                                      # "presence"
+dissimilarity = "bray-curtis"
+
+[environment]
+log10 = ["Cu", "Zn", "Pb", "Cd"]      # right-skewed concentrations
+compositions = [["sand", "silt", "clay"]]  # parts that sum to 100 %: isometric log-ratios
+factors = ["habitat"]                 # categorical variables shown as class centroids
+surfaces = ["Cu", "sand"]             # variables drawn as smooth surfaces on the ordination
+
+# Each hypothesis is a named group of variables; each is tested against community turnover
+# while controlling for the others and for space.
+[hypotheses]
+contamination = ["Cu", "Zn", "Pb", "Cd"]
+texture = ["sand", "silt", "clay"]
+water_and_organic = ["pH", "organic_matter", "conductivity"]
+
+[design]
+covariables = []                      # variables controlled for in every test
+# strata = "campaign"                 # permute within the classes of this column
+
+[analyses]
+ordination = "nmds"                   # "nmds" or "pcoa"
+dimensions = 2
+
+[permutations]
+count = {permutations}
+seed = {seed}
+
+[output]
+folder = "report"
+'''
+
+
+def init_project(folder: str | Path) -> Path:
+    """Write a runnable template project (``project.toml`` plus the demo data) into ``folder``.
+
+    ``folder`` must not exist or be empty. Returns the project file.
+    """
+    from ..data._demo import DEMO_DIR
+
+    folder = Path(folder).expanduser()
+    if folder.exists() and (not folder.is_dir() or any(folder.iterdir())):
+        raise InputError(f"{str(folder)!r} already exists and is not an empty folder; choose a "
+                         "new folder for the template project.")
+    data = folder / "data"
+    data.mkdir(parents=True, exist_ok=True)
+    for name in ("community.csv", "environment.csv", "locations.gpkg"):
+        shutil.copyfile(DEMO_DIR / name, data / name)
+    project = folder / "project.toml"
+    project.write_text(project_template(), encoding="utf-8")
+    return project
+
+
+def demo_settings(n_resamples: int, seed: int, folder: Path) -> dict[str, Any]:
+    import tomllib
+
+    from ..data._demo import DEMO_DIR
+
+    data = tomllib.loads(project_template(data_folder=str(DEMO_DIR), permutations=n_resamples,
+                                          seed=seed))
+    data["title"] = "Corvanne Basin demo: recovering a planted truth"
+    data["output"]["folder"] = str(folder)
+    return data
+
+
+def run_demo(out: str | Path, *, force: bool = False, n_resamples: int = DEMO_PERMUTATIONS,
+             seed: int = 1) -> Path:
+    """Run the whole job on the bundled Corvanne Basin data and write the report to ``out``."""
+    from ..data import demo_survey, simulate_survey
+    from ..data._demo import DEFAULT_SEED, DEMO_DIR
+
+    OutputFolder(out, force=force)  # refuse early
+    project = project_from_dict(demo_settings(n_resamples, seed, Path(out)))
+    survey = demo_survey(censored=project["inputs.below_detection"])
+    truth = simulate_survey(seed=DEFAULT_SEED)
+    inputs = {name.split(".")[0]: DEMO_DIR / name
+              for name in ("community.csv", "environment.csv", "locations.gpkg")}
+    outcome = analyse(survey, settings=project.settings, hypotheses=project.hypotheses,
+                      inputs=inputs, demo=truth)
+    return write_report(outcome, out, force=force)

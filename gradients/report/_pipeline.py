@@ -1,0 +1,99 @@
+"""Running the analyses a project asks for, in order, and collecting what they found.
+
+Each analysis is one *step*: a function that reads what earlier steps left in the
+:class:`Context` and adds a :class:`~gradients.report._model.Section`. A step that is switched
+off in the project, or whose analysis is not part of this version of the suite, leaves no
+trace in the report; a step whose precondition fails (for example a correlogram without site
+locations) is listed among the skipped analyses with the reason, and has no section either.
+"""
+
+from __future__ import annotations
+
+import time
+import zlib
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from .._errors import InputError
+from ._model import Section
+
+__all__ = ["STEPS", "Context", "rng_for", "run_steps"]
+
+
+def rng_for(seed: int, name: str) -> np.random.Generator:
+    """A generator for one analysis, derived from the project seed and the analysis name.
+
+    Each analysis has its own stream, so switching one analysis on or off does not change the
+    p-values of the others.
+    """
+    return np.random.default_rng(np.random.SeedSequence([int(seed), zlib.crc32(name.encode())]))
+
+
+@dataclass
+class Context:
+    """State shared by the steps of one run."""
+
+    settings: dict[str, Any]
+    hypotheses: dict[str, tuple[str, ...]]
+    survey: Any
+    seed: int
+    n_resamples: int
+    results: dict[str, Any] = field(default_factory=dict)
+    sections: list[Section] = field(default_factory=list)
+    methods: list[str] = field(default_factory=list)
+    skipped: list[tuple[str, str]] = field(default_factory=list)
+    timings: dict[str, float] = field(default_factory=dict)
+    site_columns: dict[str, pd.Series] = field(default_factory=dict)
+    figures: Any = None  # the figures module, or None
+
+    def rng(self, name: str) -> np.random.Generator:
+        return rng_for(self.seed, name)
+
+    def figure(self, function: str, *args: Any, **kwargs: Any) -> Any:
+        """A figure from the figures module, or None when it has no such function."""
+        func = getattr(self.figures, function, None) if self.figures is not None else None
+        if func is None:
+            return None
+        return func(*args, **kwargs)
+
+
+Step = Callable[[Context], None]
+STEPS: list[tuple[str, str | None, Step]] = []
+
+
+def step(name: str, setting: str | None = None) -> Callable[[Step], Step]:
+    """Register a step; ``setting`` is the ``analyses.*`` switch that turns it off."""
+
+    def deco(func: Step) -> Step:
+        STEPS.append((name, setting, func))
+        return func
+
+    return deco
+
+
+class Skip(Exception):
+    """Raised by a step whose precondition does not hold; the message says why."""
+
+
+def run_steps(ctx: Context, steps: list[tuple[str, str | None, Step]] | None = None) -> None:
+    """Run every registered step in order."""
+    for name, setting, func in steps if steps is not None else STEPS:
+        if setting is not None and not ctx.settings.get(setting, True):
+            continue
+        start = time.perf_counter()
+        try:
+            func(ctx)
+        except ImportError as exc:
+            if not (exc.name or "").startswith("gradients"):
+                raise
+            continue  # analysis not part of this version of the suite: no trace in the report
+        except Skip as exc:
+            ctx.skipped.append((name, str(exc)))
+        except InputError as exc:
+            ctx.skipped.append((name, str(exc)))
+        finally:
+            ctx.timings[name] = round(time.perf_counter() - start, 3)

@@ -1,0 +1,344 @@
+"""The project file: one TOML file that says what to analyse and how.
+
+Every key is listed in :data:`SCHEMA` (section -> key -> :class:`Key`), which is the single
+source for validation, for the defaults and for ``docs/project-file.md``. Unknown keys are
+errors (with the closest known key suggested); wrong types name the key and the fix; relative
+paths are resolved against the folder holding the project file.
+"""
+
+from __future__ import annotations
+
+import difflib
+import numbers
+import tomllib
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from .._errors import InputError, format_items
+
+__all__ = [
+    "COMMUNITY_TRANSFORMS",
+    "DISSIMILARITIES",
+    "ORDINATIONS",
+    "SCHEMA",
+    "Key",
+    "Project",
+    "load_project",
+    "project_from_dict",
+]
+
+COMMUNITY_TRANSFORMS = ("none", "relative", "hellinger", "wisconsin", "log1p", "presence")
+DISSIMILARITIES = (
+    "bray-curtis", "jaccard", "sorensen", "ruzicka", "kulczynski", "hellinger", "chord",
+    "chi-square", "euclidean", "manhattan", "canberra", "morisita-horn",
+)
+ORDINATIONS = ("nmds", "pcoa")
+CENSORED = ("error", "half-limit", "limit", "zero", "ros")
+MISSING = ("error", "drop-sites", "drop-variables")
+UNMATCHED = ("error", "keep-shared")
+
+
+@dataclass(frozen=True)
+class Key:
+    """One key of the project file: its type, default, allowed values and meaning."""
+
+    kind: str  # "str", "path", "int", "bool", "names", "choice", "compositions"
+    default: Any = None
+    help: str = ""
+    choices: tuple[str, ...] = ()
+    required: bool = False
+    minimum: int | None = None
+
+
+SCHEMA: dict[str, dict[str, Key]] = {
+    "": {
+        "title": Key("str", "Survey report", "Title printed at the top of the report."),
+    },
+    "inputs": {
+        "community": Key("path", None, "Site x taxon table (CSV/TSV or .xlsx), one row per site.",
+                         required=True),
+        "environment": Key("path", None, "Site x variable table (CSV/TSV or .xlsx).",
+                           required=True),
+        "locations": Key("path", None, "Site locations: GeoPackage, GeoJSON, Shapefile, or a "
+                         "CSV/xlsx with longitude/latitude or x/y columns (then give `crs`)."),
+        "site_column": Key("str", "site",
+                           "Name of the column holding the site IDs in every table."),
+        "crs": Key("str", None, "Coordinate reference system of CSV/xlsx locations, e.g. "
+                   "\"EPSG:4326\" for longitude/latitude."),
+        "coordinates": Key("names", (), "The x and y (or longitude and latitude) columns of a "
+                           "CSV/xlsx locations table, e.g. [\"easting\", \"northing\"]; found "
+                           "from common names when not given."),
+        "empty_sites": Key("choice", "error", "Sites where every abundance is 0: stop, or drop "
+                           "them (the log says which).", choices=("error", "drop")),
+        "constant": Key("choice", "error", "Environmental columns with one value at every site: "
+                        "stop, or drop them.", choices=("error", "drop")),
+        "below_detection": Key("choice", "error", "What to do with values written like `<0.5`.",
+                               choices=CENSORED),
+        "missing": Key("choice", "error", "What to do with empty environmental cells.",
+                       choices=MISSING),
+        "unmatched_sites": Key("choice", "error", "Sites present in one table but not another: "
+                               "stop, or keep only the sites shared by all tables.",
+                               choices=UNMATCHED),
+    },
+    "community": {
+        "transform": Key("choice", "none", "Transform of abundances before the dissimilarity.",
+                         choices=COMMUNITY_TRANSFORMS),
+        "dissimilarity": Key("choice", "bray-curtis", "Dissimilarity between sites.",
+                             choices=DISSIMILARITIES),
+    },
+    "environment": {
+        "log10": Key("names", (), "Right-skewed variables (e.g. metal concentrations) taken as "
+                     "log10 before they are used."),
+        "compositions": Key("compositions", (), "Groups of parts that sum to a constant (e.g. "
+                            "[[\"sand\", \"silt\", \"clay\"]]), taken as isometric log-ratios."),
+        "factors": Key("names", (), "Categorical variables whose class centroids are placed in "
+                       "the ordination."),
+        "surfaces": Key("names", (), "Variables drawn as smooth surfaces over the ordination."),
+    },
+    "hypotheses": {},  # free names -> list of variables (checked separately)
+    "design": {
+        "covariables": Key("names", (), "Variables controlled for in every hypothesis test "
+                           "(e.g. sampling depth)."),
+        "strata": Key("str", None, "A categorical column: permutations stay within its classes "
+                      "(e.g. catchment or survey campaign)."),
+    },
+    "analyses": {
+        "ordination": Key("choice", "nmds", "Ordination of the community dissimilarities.",
+                          choices=ORDINATIONS),
+        "dimensions": Key("int", 2, "Number of ordination axes.", minimum=2),
+        "vectors": Key("bool", True, "Fit environmental variables as arrows on the ordination."),
+        "factors": Key("bool", True, "Fit the `environment.factors` as class centroids."),
+        "surfaces": Key("bool", True, "Fit the `environment.surfaces` as smooth surfaces."),
+        "mantel": Key("bool", True, "Mantel test of community against each hypothesis and "
+                      "against geographic distance."),
+        "partial_mantel": Key("bool", True, "Partial Mantel test of each hypothesis controlling "
+                              "for the others, the covariables and space."),
+        "regression": Key("bool", True, "Multiple regression on distance matrices with all "
+                          "hypotheses and space together."),
+        "correlogram": Key("bool", True, "Mantel correlogram of community against geographic "
+                           "distance classes (needs locations)."),
+        "distance_decay": Key("bool", True, "Distance decay of similarity (needs locations)."),
+        "verdicts": Key("bool", True, "The decision table with one verdict per hypothesis."),
+    },
+    "permutations": {
+        "count": Key("int", 999, "Number of permutations for every test.", minimum=1),
+        "seed": Key("int", 1, "Seed of the random number generator: the same seed gives the "
+                    "same p-values and byte-identical tables.", minimum=0),
+    },
+    "output": {
+        "folder": Key("path", "report", "Folder the report is written to."),
+        "level": Key("float", 0.05, "Significance level used for the verdicts."),
+    },
+}
+
+
+@dataclass(frozen=True)
+class Project:
+    """A validated project: every setting with its default filled in.
+
+    ``settings`` maps ``"section.key"`` to its value (paths resolved to absolute paths);
+    ``hypotheses`` maps each hypothesis name to its tuple of variables; ``source`` is the
+    project file (None when built from a dict).
+    """
+
+    settings: dict[str, Any]
+    hypotheses: dict[str, tuple[str, ...]] = field(default_factory=dict)
+    source: Path | None = None
+
+    def __getitem__(self, key: str) -> Any:
+        return self.settings[key]
+
+    @property
+    def base(self) -> Path:
+        return self.source.parent if self.source is not None else Path.cwd()
+
+
+def _where(section: str, key: str | None = None) -> str:
+    if key is None:
+        return f"[{section}]" if section else "the top level"
+    return f"`{section}.{key}`" if section else f"`{key}`"
+
+
+def _suggest(name: str, known: list[str]) -> str:
+    close = difflib.get_close_matches(name, known, n=1, cutoff=0.6)
+    if close:
+        return f" Did you mean {close[0]!r}?"
+    return f" Known keys here: {format_items(known, limit=20)}."
+
+
+def _check_names(value: Any, where: str) -> tuple[str, ...]:
+    if isinstance(value, str):
+        value = [value]
+    if not isinstance(value, list) or not all(isinstance(v, str) and v for v in value):
+        raise InputError(
+            f"{where} must be a list of column names, e.g. [\"Cu\", \"Zn\"]; got {value!r}."
+        )
+    dup = sorted({v for v in value if value.count(v) > 1})
+    if dup:
+        raise InputError(f"{where} names {format_items(dup)} more than once; list each once.")
+    return tuple(value)
+
+
+def _check_value(section: str, name: str, key: Key, value: Any, base: Path) -> Any:
+    where = _where(section, name)
+    if key.kind in ("str", "path"):
+        if not isinstance(value, str) or not value.strip():
+            raise InputError(f"{where} must be a text value in quotes, e.g. {name} = \"...\"; "
+                             f"got {value!r}.")
+        if key.kind == "path":
+            return (base / Path(value).expanduser()).resolve()
+        return value
+    if key.kind == "choice":
+        if value not in key.choices:
+            close = difflib.get_close_matches(str(value), list(key.choices), n=1)
+            hint = f" Did you mean {close[0]!r}?" if close else ""
+            raise InputError(f"{where} must be one of {format_items(key.choices)}; got "
+                             f"{value!r}.{hint}")
+        return value
+    if key.kind == "bool":
+        if not isinstance(value, bool):
+            raise InputError(f"{where} must be true or false (no quotes); got {value!r}.")
+        return value
+    if key.kind == "int":
+        if not isinstance(value, int) or isinstance(value, bool):
+            raise InputError(f"{where} must be a whole number (no quotes); got {value!r}.")
+        if key.minimum is not None and value < key.minimum:
+            raise InputError(f"{where} must be at least {key.minimum}; got {value}.")
+        return value
+    if key.kind == "float":
+        if not isinstance(value, numbers.Real) or isinstance(value, bool) or not 0 < value < 1:
+            raise InputError(f"{where} must be a number between 0 and 1, e.g. 0.05; got "
+                             f"{value!r}.")
+        return float(value)
+    if key.kind == "names":
+        return _check_names(value, where)
+    if key.kind == "compositions":
+        if not isinstance(value, list) or not all(isinstance(v, list) for v in value):
+            raise InputError(f"{where} must be a list of lists of column names, e.g. "
+                             f"[[\"sand\", \"silt\", \"clay\"]]; got {value!r}.")
+        groups = tuple(_check_names(v, where) for v in value)
+        for g in groups:
+            if len(g) < 2:
+                raise InputError(f"{where}: a composition needs at least two parts; got {list(g)}.")
+        return groups
+    raise AssertionError(key.kind)  # pragma: no cover
+
+
+def project_from_dict(data: dict[str, Any], *, base: Path | None = None,
+                      source: Path | None = None) -> Project:
+    """Validate a parsed project file (``tomllib`` output) and fill in the defaults."""
+    base = base if base is not None else Path.cwd()
+    settings: dict[str, Any] = {}
+    sections = [s for s in SCHEMA if s]
+    top_keys = list(SCHEMA[""])
+    for name, value in data.items():
+        if isinstance(value, dict):
+            if name not in SCHEMA or not name:
+                raise InputError(f"Unknown section [{name}] in the project file."
+                                 + _suggest(name, sections))
+        elif name in sections:
+            raise InputError(f"`{name}` must be a section: write [{name}] on its own line and "
+                             "put its keys below it.")
+        elif name not in top_keys:
+            hint = _suggest(name, top_keys + sections)
+            raise InputError(f"Unknown key `{name}` at the top level of the project file.{hint}")
+    hypotheses: dict[str, tuple[str, ...]] = {}
+    for section, keys in SCHEMA.items():
+        table = data if not section else data.get(section, {})
+        if section == "hypotheses":
+            for hname, variables in table.items():
+                if not hname.strip():
+                    raise InputError("A hypothesis in [hypotheses] has an empty name.")
+                hypotheses[hname] = _check_names(variables, _where("hypotheses", hname))
+                if not hypotheses[hname]:
+                    raise InputError(f"{_where('hypotheses', hname)} lists no variables; name "
+                                     "at least one column.")
+            continue
+        for name in (table if section else []):
+            if name not in keys:
+                raise InputError(f"Unknown key `{name}` in [{section}] of the project file."
+                                 + _suggest(name, list(keys)))
+        for name, key in keys.items():
+            full = f"{section}.{name}" if section else name
+            if name in table:
+                settings[full] = _check_value(section, name, key, table[name], base)
+            elif key.required:
+                raise InputError(f"{_where(section, name)} is required: add it to [{section}] "
+                                 f"({key.help})")
+            elif key.kind == "path" and key.default is not None:
+                settings[full] = (base / key.default).resolve()
+            else:
+                settings[full] = key.default
+    for full in ("inputs.community", "inputs.environment", "inputs.locations"):
+        path = settings.get(full)
+        if path is not None and not Path(path).is_file():
+            raise InputError(
+                f"`{full}` names the file {str(path)!r}, which does not exist. Relative paths "
+                "are read from the folder holding the project file; check the name.",
+                file=str(path),
+            )
+    coords = settings["inputs.coordinates"]
+    if coords and len(coords) != 2:
+        raise InputError("`inputs.coordinates` must name two columns, x then y (or longitude "
+                         f"then latitude); got {list(coords)}.")
+    _cross_check(settings, hypotheses)
+    return Project(settings, hypotheses, source)
+
+
+def _cross_check(settings: dict[str, Any], hypotheses: dict[str, tuple[str, ...]]) -> None:
+    seen: dict[str, str] = {}
+    for hname, variables in hypotheses.items():
+        for v in variables:
+            if v in seen:
+                raise InputError(
+                    f"Variable {v!r} is in both hypotheses {seen[v]!r} and {hname!r}; each "
+                    "variable may belong to one hypothesis only, so that each test controls for "
+                    "the others.", columns=[v])
+            seen[v] = hname
+    clash = [v for v in settings["design.covariables"] if v in seen]
+    if clash:
+        raise InputError(f"`design.covariables` {format_items(clash)} are also in a hypothesis; "
+                         "a variable is either tested or controlled for, not both.", columns=clash)
+    if settings["design.strata"] in seen:
+        raise InputError("`design.strata` names a variable that is also in a hypothesis; use a "
+                         "separate grouping column.")
+    parts = [p for g in settings["environment.compositions"] for p in g]
+    dup = sorted({p for p in parts if parts.count(p) > 1})
+    if dup:
+        raise InputError(f"`environment.compositions`: {format_items(dup)} are in more than one "
+                         "composition.")
+    both = sorted(set(parts) & set(settings["environment.log10"]))
+    if both:
+        raise InputError(f"{format_items(both)} are in both `environment.log10` and "
+                         "`environment.compositions`; choose one transform per variable.")
+
+
+def load_project(path: str | Path) -> Project:
+    """Read and validate a project file (TOML)."""
+    path = Path(path).expanduser()
+    if not path.is_file():
+        raise InputError(f"Project file {str(path)!r} does not exist. Create one with "
+                         "`gradients init DIR`.", file=str(path))
+    try:
+        data = tomllib.loads(path.read_text(encoding="utf-8"))
+    except UnicodeDecodeError:
+        raise InputError(f"Project file {str(path)!r} is not UTF-8 text.", file=str(path)) from None
+    except tomllib.TOMLDecodeError as exc:
+        raise InputError(f"Project file {str(path)!r} is not valid TOML: {exc}. Check quotes "
+                         "around text and brackets around lists.", file=str(path)) from None
+    try:
+        return project_from_dict(data, base=path.resolve().parent, source=path.resolve())
+    except InputError as exc:
+        raise InputError(f"{path.name}: {exc}", file=str(path), sites=exc.sites,
+                         columns=exc.columns) from None
+
+
+def defaults() -> dict[str, Any]:
+    """Every setting at its default, keyed ``"section.key"`` (inputs left empty)."""
+    out: dict[str, Any] = {}
+    for section, keys in SCHEMA.items():
+        for name, key in keys.items():
+            out[f"{section}.{name}" if section else name] = key.default
+    return out
+

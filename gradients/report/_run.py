@@ -1,0 +1,282 @@
+"""Running a whole job: project -> survey -> analyses -> report folder."""
+
+from __future__ import annotations
+
+import hashlib
+import importlib
+import json
+import platform
+import sys
+import time
+from importlib import metadata
+from pathlib import Path
+from typing import Any
+
+import pandas as pd
+
+from .._errors import InputError
+from ._html import render_html
+from ._methods import methods_paragraph
+from ._model import Outcome
+from ._pipeline import Context, run_steps
+from ._project import Project, defaults, load_project
+from ._safety import safe_name
+from ._writers import OutputFolder, write_csv, write_workbook
+
+__all__ = ["analyse", "read_project_survey", "run_project", "write_report"]
+
+DEPENDENCIES = ("numpy", "scipy", "pandas", "statsmodels", "matplotlib", "geopandas", "shapely",
+                "pyproj", "pyogrio", "numba", "joblib", "openpyxl")
+
+
+def _version() -> str:
+    from .. import __version__
+
+    return __version__
+
+
+def software_versions() -> dict[str, str]:
+    """Versions of Python, gradients and its dependencies."""
+    out = {"gradients": _version(), "python": platform.python_version()}
+    for name in DEPENDENCIES:
+        try:
+            out[name] = metadata.version(name)
+        except metadata.PackageNotFoundError:
+            out[name] = "not installed"
+    return out
+
+
+def sha256(path: Path) -> str:
+    h = hashlib.sha256()
+    with open(path, "rb") as fh:
+        for chunk in iter(lambda: fh.read(1 << 20), b""):
+            h.update(chunk)
+    return h.hexdigest()
+
+
+def read_project_survey(project: Project) -> Any:
+    """Read and validate the survey tables a project names."""
+    from ..data import read_survey
+
+    s = project.settings
+    return read_survey(
+        s["inputs.community"], s["inputs.environment"], s["inputs.locations"],
+        site_column=s["inputs.site_column"],
+        coordinates=tuple(s["inputs.coordinates"]) or None,
+        crs=s["inputs.crs"],
+        factors=list(s["environment.factors"]) or None,
+        shared_sites_only=s["inputs.unmatched_sites"] == "keep-shared",
+        missing=s["inputs.missing"],
+        censored=s["inputs.below_detection"],
+        empty_sites=s["inputs.empty_sites"],
+        constant=s["inputs.constant"],
+    )
+
+
+def _figures_module() -> Any:
+    try:
+        return importlib.import_module("gradients.report._figures")
+    except ImportError:
+        return None
+
+
+def _jsonable(value: Any) -> Any:
+    if isinstance(value, Path):
+        return str(value)
+    if isinstance(value, tuple | list):
+        return [_jsonable(v) for v in value]
+    if isinstance(value, dict):
+        return {str(k): _jsonable(v) for k, v in value.items()}
+    return value
+
+
+def analyse(survey: Any, *, settings: dict[str, Any] | None = None,
+            hypotheses: dict[str, tuple[str, ...]] | None = None, title: str | None = None,
+            inputs: dict[str, Path] | None = None, demo: Any = None) -> Outcome:
+    """Run every analysis a project asks for on ``survey`` and collect the report content.
+
+    Parameters
+    ----------
+    survey : Survey
+        The validated survey.
+    settings : dict, optional
+        ``"section.key"`` settings as in :class:`Project` (defaults for those not given).
+    hypotheses : dict, optional
+        Hypothesis name -> variables.
+    title : str, optional
+    inputs : dict, optional
+        Role -> input file, for the checksums in ``run.json``.
+    demo : DemoScenario, optional
+        The planted truth of a simulated survey; adds the section comparing it with what was
+        found.
+    """
+    from . import _steps  # noqa: F401  (registers the steps)
+
+    full = defaults()
+    full.update(settings or {})
+    hypotheses = dict(hypotheses or {})
+    start = time.perf_counter()
+    ctx = Context(settings=full, hypotheses=hypotheses, survey=survey,
+                  seed=int(full["permutations.seed"]), n_resamples=int(full["permutations.count"]),
+                  figures=_figures_module())
+    ctx.results["demo"] = demo
+    run_steps(ctx)
+    decisions = [str(d) for d in getattr(survey, "log", ())]
+    strata = full["design.strata"]
+    groups = None
+    if strata and strata in survey.environment.columns:
+        groups = {str(k): int(v) for k, v in
+                  survey.environment[strata].value_counts(sort=False).items()}
+    methods = methods_paragraph(
+        version=_version(), sentences=ctx.methods, decisions=decisions,
+        n_resamples=ctx.n_resamples, seed=ctx.seed, n_sites=survey.community.shape[0],
+        n_taxa=survey.community.shape[1], groups=groups, strata=strata)
+    env = survey.environment
+    run_info: dict[str, Any] = {
+        "software": software_versions(),
+        "platform": {"system": platform.system(), "machine": platform.machine(),
+                     "python_implementation": platform.python_implementation()},
+        "command": sys.argv[:1] and [Path(sys.argv[0]).name, *sys.argv[1:]],
+        "inputs": {role: {"path": str(p), "sha256": sha256(Path(p))}
+                   for role, p in (inputs or {}).items() if p is not None},
+        "parameters": _jsonable(full),
+        "hypotheses": _jsonable(hypotheses),
+        "seed": ctx.seed,
+        "permutations": ctx.n_resamples,
+        "survey": {"n_sites": int(survey.community.shape[0]),
+                   "n_taxa": int(survey.community.shape[1]),
+                   "n_variables": int(env.shape[1]),
+                   "locations": survey.locations is not None},
+        "decisions": decisions,
+        "skipped": [{"analysis": a, "reason": r} for a, r in ctx.skipped],
+        "timings": {**ctx.timings, "analysis_total": round(time.perf_counter() - start, 3)},
+    }
+    sites = pd.DataFrame(ctx.site_columns) if ctx.site_columns else None
+    return Outcome(title=title or full["title"], sections=ctx.sections, methods=methods,
+                   run_info=run_info, sites=sites, locations=survey.locations,
+                   skipped=ctx.skipped, summary=list(ctx.results.get("summary", [])))
+
+
+def _save_figure(fig: Any, path: Path, fmt: str, figures: Any) -> None:
+    saver = getattr(figures, "save_figure", None) if figures is not None else None
+    if saver is not None:
+        saver(fig, path)
+        return
+    import matplotlib
+
+    with matplotlib.rc_context({"svg.hashsalt": "gradients", "svg.fonttype": "path"}):
+        fig.savefig(path, format=fmt, dpi=150, metadata={"Date": None} if fmt == "svg" else None)
+
+
+def _unique(name: str, used: set[str]) -> str:
+    base, k = name, 2
+    while name.lower() in used:
+        name = f"{base}-{k}"
+        k += 1
+    used.add(name.lower())
+    return name
+
+
+def write_report(outcome: Outcome, out: str | Path, *, force: bool = False) -> Path:
+    """Write the report folder for ``outcome`` and return its path.
+
+    The folder is written beside ``out`` under a temporary name and renamed into place when
+    complete; see :class:`~gradients.report._writers.OutputFolder`.
+    """
+    import matplotlib.pyplot as plt
+
+    figures_module = _figures_module()
+    start = time.perf_counter()
+    folder = OutputFolder(out, force=force)
+    tables = outcome.tables
+    used: set[str] = set()
+    table_files = {name: _unique(safe_name(name), used) for name in tables}
+    used = set()
+    figure_files: dict[str, str] = {}
+    for s in outcome.sections:
+        for name in s.figures:
+            figure_files[name] = _unique(safe_name(name), used)
+    files = (["report.html", "methods.md", "run.json", "tables.xlsx"]
+             + [f"tables/{f}.csv" for f in table_files.values()]
+             + [f"figures/{f}.{ext}" for f in figure_files.values() for ext in ("png", "svg")])
+    has_gis = outcome.locations is not None
+    if has_gis:
+        files.append("sites.gpkg")
+    info = dict(outcome.run_info)
+    info["files"] = sorted(files)
+    outcome.run_info = info
+    with folder:
+        for name, frame in tables.items():
+            write_csv(frame, folder.path(f"tables/{table_files[name]}.csv"))
+        write_workbook(tables, folder.path("tables.xlsx"))
+        svg: dict[str, bytes] = {}
+        for s in outcome.sections:
+            for name, fig in s.figures.items():
+                base = figure_files[name]
+                for ext in ("png", "svg"):
+                    _save_figure(fig, folder.path(f"figures/{base}.{ext}"), ext, figures_module)
+                svg[name] = folder.path(f"figures/{base}.svg").read_bytes()
+                plt.close(fig)
+        if has_gis:
+            _write_gis(outcome, folder.path("sites.gpkg"))
+        folder.path("methods.md").write_text("# Methods\n\n" + outcome.methods, encoding="utf-8")
+        html = render_html(outcome, svg, figure_files)
+        folder.path("report.html").write_text(html, encoding="utf-8")
+        info["timings"] = {**info["timings"],
+                           "writing": round(time.perf_counter() - start, 3)}
+        folder.path("run.json").write_text(json.dumps(info, indent=2, ensure_ascii=False)
+                                           + "\n", encoding="utf-8")
+        return folder.commit()
+
+
+def _write_gis(outcome: Outcome, path: Path) -> None:
+    import geopandas as gpd
+
+    loc = outcome.locations
+    frame = pd.DataFrame(index=loc.index)
+    if outcome.sites is not None:
+        frame = frame.join(outcome.sites)
+    frame.columns = [str(c) for c in frame.columns]
+    gdf = gpd.GeoDataFrame(frame, geometry=loc.geometry.values, crs=loc.crs)
+    gdf.index = pd.Index([str(i) for i in loc.index], name="site")
+    gdf = gdf.reset_index()
+    gdf.to_file(path, layer="sites", driver="GPKG")
+
+
+def run_project(project: str | Path | Project, *, out: str | Path | None = None,
+                force: bool = False) -> Path:
+    """Run the project file ``project`` and write its report folder; return the folder."""
+    if not isinstance(project, Project):
+        project = load_project(project)
+    target = Path(out) if out is not None else Path(project["output.folder"])
+    OutputFolder(target, force=force)  # refuse early, before minutes of computation
+    survey = read_project_survey(project)
+    s = project.settings
+    inputs = {"community": s["inputs.community"], "environment": s["inputs.environment"],
+              "locations": s["inputs.locations"]}
+    if project.source is not None:
+        inputs["project"] = project.source
+    outcome = analyse(survey, settings=s, hypotheses=project.hypotheses, inputs=inputs)
+    return write_report(outcome, target, force=force)
+
+
+def check_hypotheses(project: Project, survey: Any) -> None:
+    """Raise InputError when the project names variables the survey does not have."""
+    env = survey.environment
+    named = {f"hypotheses.{h}": list(v) for h, v in project.hypotheses.items()}
+    for key in ("design.covariables", "environment.log10", "environment.factors",
+                "environment.surfaces"):
+        named[key] = list(project[key])
+    named["environment.compositions"] = [p for g in project["environment.compositions"]
+                                         for p in g]
+    if project["design.strata"]:
+        named["design.strata"] = [project["design.strata"]]
+    for key, names in named.items():
+        absent = [v for v in names if v not in env.columns]
+        if absent:
+            from .._errors import format_items
+
+            raise InputError(
+                f"`{key}` names {format_items(absent)}, which the environmental table does not "
+                f"have (it has {format_items(env.columns, limit=30)}). Fix the names in the "
+                "project file.", columns=absent)
