@@ -415,7 +415,7 @@ def gower_distance(
                     "or mark it 'qualitative'.",
                     columns=[c],
                 )
-            v = s.to_numpy(dtype=np.float64, na_value=np.nan)
+            v = s.to_numpy(dtype=np.float64, na_value=np.nan, copy=True)
             if np.isinf(v).any():
                 raise InputError(f"Column {c!r} holds infinite values.", columns=[c])
             kind[k] = 0
@@ -428,7 +428,7 @@ def gower_distance(
             kind[k] = 1
         else:
             if pd.api.types.is_bool_dtype(s) or pd.api.types.is_numeric_dtype(s):
-                v = s.to_numpy(dtype=np.float64, na_value=np.nan)
+                v = s.to_numpy(dtype=np.float64, na_value=np.nan, copy=True)
             else:
                 raise InputError(
                     f"Column {c!r} is marked dichotomous; it must hold True/False or 1/0.",
