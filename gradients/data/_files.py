@@ -308,7 +308,7 @@ def _read_excel(path: Path, name: str, role: str, sheet: str | int | None) -> Ra
                 f"{format_items(names)}. Pass sheet= with one of these names or a 0-based index.",
                 file=name,
             )
-        raw = book.parse(chosen, header=None, dtype=object)
+        raw = pd.read_excel(book, sheet_name=chosen, header=None, dtype=object)
     rows = raw.astype(object).where(raw.notna(), None).to_numpy().tolist()
     numbers = [int(i) + 1 for i in raw.index]
     frame, row_numbers = _rows_to_frame(rows, numbers, name, role, "row")

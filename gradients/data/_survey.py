@@ -156,7 +156,7 @@ def _default_index(index: pd.Index) -> bool:
 
 
 def _locate_site_column(raw: RawTable, site_column: str) -> str | None:
-    columns = [str(c) for c in raw.frame.columns]
+    columns = [str(c).strip() for c in raw.frame.columns]
     if site_column in columns:
         return site_column
     folded = [c for c in columns if c.strip().casefold() == site_column.strip().casefold()]
@@ -838,6 +838,12 @@ def _apply_censored(env: pd.DataFrame, censored: pd.DataFrame, table: _Table, op
     return env
 
 
+def _show(value: object) -> str:
+    if isinstance(value, float | np.floating):
+        return f"{float(value):g}"
+    return repr(str(value))
+
+
 def _constant_columns(env: pd.DataFrame) -> list[str]:
     out = []
     for col in env.columns:
@@ -964,7 +970,7 @@ def _build(raws: dict[str, RawTable], opts: _Options) -> _Parts:
         env_table = tables["environment"]
         if opts.constant == "error":
             values = ", ".join(
-                f"{c!r} (every site = {env[c].dropna().iloc[0]!r})" for c in constant[:10]
+                f"{c!r} (every site = {_show(env[c].dropna().iloc[0])})" for c in constant[:10]
             )
             raise InputError(
                 f"{_cap(env_table.raw.source)}: {len(constant)} column(s) take the same value at "
