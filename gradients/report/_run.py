@@ -157,15 +157,9 @@ def analyse(survey: Any, *, settings: dict[str, Any] | None = None,
                    skipped=ctx.skipped, summary=list(ctx.results.get("summary", [])))
 
 
-def _save_figure(fig: Any, path: Path, fmt: str, figures: Any) -> None:
-    saver = getattr(figures, "save_figure", None) if figures is not None else None
-    if saver is not None:
-        saver(fig, path)
-        return
-    import matplotlib
-
-    with matplotlib.rc_context({"svg.hashsalt": "gradients", "svg.fonttype": "path"}):
-        fig.savefig(path, format=fmt, dpi=150, metadata={"Date": None} if fmt == "svg" else None)
+def _save_figure(fig: Any, stem: Path, figures: Any) -> None:
+    """Write ``stem.png`` and ``stem.svg`` with the figures module's reproducible writer."""
+    figures.save_figure(fig, stem)
 
 
 def _unique(name: str, used: set[str]) -> str:
@@ -183,8 +177,6 @@ def write_report(outcome: Outcome, out: str | Path, *, force: bool = False) -> P
     The folder is written beside ``out`` under a temporary name and renamed into place when
     complete; see :class:`~gradients.report._writers.OutputFolder`.
     """
-    import matplotlib.pyplot as plt
-
     figures_module = _figures_module()
     start = time.perf_counter()
     folder = OutputFolder(out, force=force)
@@ -213,10 +205,8 @@ def write_report(outcome: Outcome, out: str | Path, *, force: bool = False) -> P
         for s in outcome.sections:
             for name, fig in s.figures.items():
                 base = figure_files[name]
-                for ext in ("png", "svg"):
-                    _save_figure(fig, folder.path(f"figures/{base}.{ext}"), ext, figures_module)
+                _save_figure(fig, folder.path(f"figures/{base}"), figures_module)
                 svg[name] = folder.path(f"figures/{base}.svg").read_bytes()
-                plt.close(fig)
         if has_gis:
             _write_gis(outcome, folder.path("sites.gpkg"))
         folder.path("methods.md").write_text("# Methods\n\n" + outcome.methods, encoding="utf-8")

@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import pandas as pd
 
-from .._errors import format_items
+from .._errors import InputError, format_items
 from ._model import Section
 from ._pipeline import Context, Skip, step
 
@@ -30,13 +30,24 @@ def _section(ctx: Context, key: str) -> Section | None:
 
 def _add_figure(ctx: Context, section: Section, name: str, caption: str, function: str,
                 *args: object, **kwargs: object) -> None:
-    fig = ctx.figure(function, *args, **kwargs)
+    try:
+        fig = ctx.figure(function, *args, **kwargs)
+    except InputError as exc:
+        ctx.skipped.append((f"figure {name}", str(exc)))
+        return
     if fig is not None:
         section.figures[name] = fig
         section.captions[name] = caption
 
 
 # ------------------------------------------------------------------------------- community
+METRIC_NAMES = {"bray-curtis": "Bray-Curtis", "jaccard": "Jaccard", "sorensen": "Sørensen",
+                "ruzicka": "Růžička", "kulczynski": "Kulczynski", "hellinger": "Hellinger",
+                "chord": "chord", "chi-square": "chi-square", "euclidean": "Euclidean",
+                "manhattan": "Manhattan", "canberra": "Canberra",
+                "morisita-horn": "Morisita-Horn"}
+
+
 @step("community")
 def community_step(ctx: Context) -> None:
     from ..distance import dissimilarity, transform_community
@@ -60,7 +71,8 @@ def community_step(ctx: Context) -> None:
                      "ordination (Legendre & Gallagher 2001)",
     }.get(metric, "it was chosen in the project file")
     ctx.methods.append(
-        f"Community dissimilarities between the {d.n} sites were {metric} dissimilarities"
+        f"Community dissimilarities between the {d.n} sites were "
+        f"{METRIC_NAMES.get(metric, metric)} dissimilarities"
         f"{' of the transformed table' if transform != 'none' else ''}, chosen because {why}."
     )
 
@@ -112,8 +124,6 @@ def environment_step(ctx: Context) -> None:
     wanted += list(ctx.settings["design.covariables"])
     absent = [v for v in wanted if v not in env.columns]
     if absent:
-        from .._errors import InputError
-
         raise InputError(
             f"The project names variable(s) {format_items(absent)} that are not in the "
             f"environmental table (it has {format_items(env.columns)}). Fix [hypotheses] or "
@@ -172,7 +182,7 @@ def ordination_step(ctx: Context) -> None:
         ctx.methods.append(
             f"Sites were ordinated by non-metric multidimensional scaling (Kruskal 1964) in {k} "
             f"dimensions from {len(res.start_stresses)} starts (one from PCoA); the best "
-            f"solution had stress-1 = {res.stress:.3f} ({res.stress_verdict}).")
+            f"solution had stress-1 = {res.stress:.3f} ({res.stress_verdict.split(':')[0]}).")
         starts = res.table.copy()
         sec.tables["nmds_starts"] = starts
     else:
@@ -208,4 +218,139 @@ def ordination_step(ctx: Context) -> None:
     if kind == "nmds":
         _add_figure(ctx, sec, "shepard", "Shepard diagram: distances in the ordination against "
                     "community dissimilarities, with the monotone fit.", "shepard_diagram",
-                    res.shepard, stress=res.stress)
+                    res.shepard, stress=res.stress,
+                    xlabel=f"{METRIC_NAMES.get(ctx.results['community'].metric, 'Community')} "
+                    "dissimilarity")
+
+
+# ------------------------------------------------------------------------- fitting stage
+def _strata(ctx: Context) -> pd.Series | None:
+    name = ctx.settings["design.strata"]
+    if not name:
+        return None
+    env = ctx.survey.environment
+    if name not in env.columns:
+        raise InputError(f"`design.strata` names {name!r}, which the environmental table does "
+                         "not have.", columns=[name])
+    return env[name]
+
+
+def _numeric(frame: pd.DataFrame) -> pd.DataFrame:
+    keep = [c for c in frame.columns
+            if pd.api.types.is_numeric_dtype(frame[c]) and not pd.api.types.is_bool_dtype(frame[c])]
+    return frame.loc[:, keep]
+
+
+@step("vectors", "analyses.vectors")
+def vectors_step(ctx: Context) -> None:
+    from ..fitting import fit_vectors
+
+    scores = ctx.results["ordination"].scores
+    env = _numeric(ctx.results["environment"])
+    if env.shape[1] == 0:
+        raise Skip("the environmental table has no numeric variables")
+    fit = fit_vectors(scores, env, n_resamples=ctx.n_resamples, rng=ctx.rng("vectors"),
+                      strata=_strata(ctx))
+    ctx.results["vectors"] = fit
+    axes = list(fit.axes)
+    table = fit.table.copy()
+    table.index.name = "variable"
+    raw = fit.arrows(1.0)
+    scaled = fit.arrows("auto")
+    for a in axes:
+        table[f"tip_{a}"] = raw[a]
+    for a in axes:
+        table[f"plot_{a}"] = scaled[a]
+    table["plot_multiplier"] = scaled.attrs["multiplier"]
+    sec = Section("vectors", "Environmental variables fitted onto the ordination")
+    sec.paragraphs.append(
+        "Each variable was regressed on the site scores; the arrow points where the variable "
+        "increases fastest and r2 says how well the ordination predicts it. Direction cosines "
+        "are in the axis columns, raw arrow tips (cosine x sqrt(r2)) in tip_*, and tips "
+        "multiplied by one common factor to fill the plot in plot_*.")
+    sig = table[table["pvalue"] <= ctx.settings["output.level"]].sort_values("r2",
+                                                                               ascending=False)
+    if len(sig):
+        sec.paragraphs.append(
+            "Strongest fits: " + "; ".join(
+                f"{v} (r2 = {row.r2:.2f}, {_fmt_p(row.pvalue)})"
+                for v, row in sig.head(5).iterrows()) + ".")
+    sec.tables["vector_fits"] = table
+    sec.shown.append("vector_fits")
+    sec.notes.extend(fit.notes)
+    ctx.sections.append(sec)
+    ctx.methods.append(
+        f"Environmental variables were fitted as vectors onto the first {len(axes)} ordination "
+        "axes (Kantvilas & Minchin 1989) and tested by permuting each variable among sites; "
+        + "; ".join(f"{v} r2 = {row.r2:.2f} ({_fmt_p(row.pvalue)})"
+                    for v, row in fit.table.iterrows()) + " (p-values before the Holm "
+        "adjustment given in the table).")
+
+
+@step("factors", "analyses.factors")
+def factors_step(ctx: Context) -> None:
+    from ..fitting import fit_factors
+
+    names = list(ctx.settings["environment.factors"])
+    env = ctx.survey.environment
+    if not names:
+        names = [c for c in env.columns if str(env[c].dtype) == "category"
+                 and c != ctx.settings["design.strata"]]
+    if not names:
+        return
+    fit = fit_factors(ctx.results["ordination"].scores, env[names],
+                      n_resamples=ctx.n_resamples, rng=ctx.rng("factors"), strata=_strata(ctx))
+    ctx.results["factors"] = fit
+    sec = Section("factors", "Site classes in the ordination")
+    sec.paragraphs.append(
+        "Class centroids of each categorical variable in the ordination; r2 is the share of the "
+        "scores' sum of squares between classes, tested by permuting the class labels.")
+    table = fit.table.copy()
+    table.index.name = "factor"
+    sec.tables["factor_fits"] = table
+    sec.tables["factor_centroids"] = fit.centroids
+    sec.shown += ["factor_fits", "factor_centroids"]
+    sec.notes.extend(fit.notes)
+    ctx.sections.append(sec)
+    ctx.methods.append(
+        "Categorical variables were fitted as class centroids in the ordination and tested by "
+        "permuting class labels: " + "; ".join(
+            f"{f} r2 = {row.r2:.2f} ({_fmt_p(row.pvalue)})" for f, row in fit.table.iterrows())
+        + ".")
+
+
+@step("biplot")
+def biplot_step(ctx: Context) -> None:
+    res = ctx.results.get("ordination")
+    sec = _section(ctx, "ordination")
+    if res is None or sec is None:
+        return
+    kwargs: dict[str, object] = {"alpha": ctx.settings["output.level"]}
+    vec = ctx.results.get("vectors")
+    if vec is not None:
+        arrows = vec.arrows(1.0)[list(vec.axes)]
+        arrows["pvalue"] = vec.table["pvalue"]
+        kwargs["arrows"] = arrows
+    fac = ctx.results.get("factors")
+    if fac is not None:
+        kwargs["centroids"] = fac.centroids
+        first = fac.table.index[0]
+        kwargs["groups"] = ctx.survey.environment[first].astype(object)
+    if "taxon_scores" in sec.tables:
+        kwargs["taxa"] = sec.tables["taxon_scores"]
+    if hasattr(res, "stress"):
+        kwargs["stress"] = res.stress
+    else:
+        kwargs["explained"] = tuple(res.proportion_explained.iloc[:2])
+    caption = "Sites in the ordination"
+    if vec is not None:
+        caption += (", with fitted environmental arrows (faded and dashed when p > "
+                    f"{ctx.settings['output.level']})")
+    if fac is not None:
+        caption += ", class centroids"
+    if "taxa" in kwargs:
+        caption += " and taxon weighted averages (grey crosses)"
+    _add_figure(ctx, sec, "ordination_biplot", caption + ".", "ordination_biplot",
+                res.scores, **kwargs)
+    # the biplot goes first in the section
+    sec.figures = dict(sorted(sec.figures.items(), key=lambda kv: kv[0] != "ordination_biplot"))
