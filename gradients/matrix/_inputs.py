@@ -1,0 +1,186 @@
+"""Reading and aligning the matrices given to the matrix-correlation methods."""
+
+from __future__ import annotations
+
+import numbers
+from collections.abc import Mapping, Sequence
+
+import numpy as np
+import pandas as pd
+from scipy import stats
+from scipy.spatial.distance import squareform
+
+from .._errors import InputError, format_items
+from .._validation import check_labels_match
+from ..distance import DistanceMatrix
+from ..permutation import SCHEMES, PermutationPlan, permutation_plan
+
+__all__ = [
+    "MatrixLike",
+    "align_matrices",
+    "align_strata",
+    "build_plan",
+    "check_jobs",
+    "control_matrices",
+    "rank_condensed",
+    "square_of",
+    "standardise",
+]
+
+MatrixLike = DistanceMatrix | np.ndarray | pd.DataFrame
+
+
+def _one(value: object, name: str) -> tuple[DistanceMatrix, bool]:
+    """A DistanceMatrix and whether its labels are real (False for a bare array)."""
+    if isinstance(value, DistanceMatrix):
+        return value, True
+    if isinstance(value, pd.DataFrame):
+        try:
+            return DistanceMatrix.from_square(value), True
+        except InputError as exc:
+            raise InputError(f"`{name}`: {exc}") from None
+    if isinstance(value, np.ndarray | list | tuple):
+        try:
+            array = np.asarray(value, dtype=np.float64)
+        except (TypeError, ValueError):
+            raise InputError(f"`{name}` must hold numbers only.") from None
+        try:
+            if array.ndim == 1:
+                m = array.size
+                n = int(np.rint((1 + np.sqrt(1 + 8 * m)) / 2))
+                if n * (n - 1) // 2 != m:
+                    raise InputError(f"{m} values are not a condensed distance vector")
+                return DistanceMatrix(array, range(n)), False
+            return DistanceMatrix.from_square(array), False
+        except InputError as exc:
+            raise InputError(f"`{name}`: {exc}") from None
+    raise InputError(
+        f"`{name}` must be a DistanceMatrix, a square array or a square DataFrame labelled by "
+        f"site; got {type(value).__name__}."
+    )
+
+
+def align_matrices(named: Mapping[str, object]) -> tuple[dict[str, DistanceMatrix], pd.Index]:
+    """Turn every input into a DistanceMatrix on one common, identically ordered set of sites.
+
+    Labelled inputs (DistanceMatrix, DataFrame) are matched by site label and reordered to the
+    first labelled one; a label mismatch raises an :class:`InputError` that lists the sites
+    found on only one side. Bare square arrays carry no labels: they are taken in the order of
+    the labelled inputs and must have the same number of sites.
+    """
+    parsed = {name: _one(value, name) for name, value in named.items()}
+    labelled = [(name, dm) for name, (dm, real) in parsed.items() if real]
+    if labelled:
+        ref_name, ref = labelled[0]
+        labels = ref.labels
+    else:
+        ref_name, ref = next(iter(parsed.items()))[0], next(iter(parsed.values()))[0]
+        labels = ref.labels
+    out: dict[str, DistanceMatrix] = {}
+    for name, (dm, real) in parsed.items():
+        if dm.n != len(labels) and not real:
+            raise InputError(
+                f"`{name}` has {dm.n} sites but `{ref_name}` has {len(labels)}; an unlabelled "
+                "array must list the same sites in the same order. Pass labelled DataFrames or "
+                "DistanceMatrix objects to match sites by label."
+            )
+        if not real:
+            dm = DistanceMatrix(dm.condensed, labels, validate=False)
+        elif not dm.labels.equals(labels):
+            check_labels_match(
+                labels, dm.labels, left_name=f"`{ref_name}`", right_name=f"`{name}`",
+                fix="Keep only the shared sites in both, e.g. with .subset(common_labels).",
+            )
+            dm = dm.subset(labels)
+        out[name] = dm
+    n = len(labels)
+    if n < 3:
+        raise InputError(f"At least 3 sites are needed to correlate distance matrices; got {n}.")
+    return out, labels
+
+
+def control_matrices(z: object) -> dict[str, object]:
+    """Control matrices as an ordered mapping name -> matrix."""
+    if isinstance(z, Mapping):
+        if not z:
+            raise InputError("`z` is empty: give at least one control matrix.")
+        return {str(k): v for k, v in z.items()}
+    if isinstance(z, DistanceMatrix | pd.DataFrame) or (
+        isinstance(z, np.ndarray) and z.ndim == 2
+    ):
+        return {"z": z}
+    if isinstance(z, Sequence) and not isinstance(z, str):
+        if len(z) == 0:
+            raise InputError("`z` is empty: give at least one control matrix.")
+        return {f"z{i + 1}": v for i, v in enumerate(z)}
+    if isinstance(z, np.ndarray) and z.ndim == 3:
+        return {f"z{i + 1}": v for i, v in enumerate(z)}
+    raise InputError(
+        "`z` must be a matrix, a sequence of matrices or a mapping name -> matrix; got "
+        f"{type(z).__name__}."
+    )
+
+
+def standardise(v: np.ndarray, name: str) -> np.ndarray:
+    """Centre a condensed vector and scale it to unit length (so r is a plain dot product)."""
+    c = np.asarray(v, dtype=np.float64) - float(np.mean(v))
+    norm = float(np.sqrt(c @ c))
+    if not np.isfinite(norm) or norm <= 1e-300 or norm <= 1e-13 * float(np.max(np.abs(v))):
+        raise InputError(
+            f"`{name}` has the same value for every pair of sites, so no correlation with it "
+            "is defined. Check that the right matrix was passed."
+        )
+    return c / norm
+
+
+def rank_condensed(v: np.ndarray) -> np.ndarray:
+    """Average ranks of a condensed vector (ties share their mean rank), for Spearman."""
+    return stats.rankdata(v, method="average").astype(np.float64)
+
+
+def square_of(c: np.ndarray) -> np.ndarray:
+    """C-ordered float64 square matrix from a condensed vector (zero diagonal)."""
+    return np.ascontiguousarray(squareform(np.asarray(c, dtype=np.float64), checks=False))
+
+
+def check_jobs(n_jobs: object) -> int:
+    if not isinstance(n_jobs, numbers.Integral) or isinstance(n_jobs, bool) or n_jobs == 0 \
+            or n_jobs < -1:
+        raise InputError(f"`n_jobs` must be a positive integer or -1 (all cores); got {n_jobs!r}.")
+    return int(n_jobs)
+
+
+def build_plan(
+    n: int,
+    *,
+    scheme: str | PermutationPlan | None,
+    strata: object,
+    n_resamples: int,
+    rng: object,
+) -> PermutationPlan:
+    """The permutation plan for a matrix test: free by default, within ``strata`` if given."""
+    if isinstance(scheme, PermutationPlan):
+        if scheme.n_sites != n:
+            raise InputError(f"The permutation plan given as `scheme` is for {scheme.n_sites} "
+                             f"sites; the matrices have {n}.")
+        if scheme._draw is not None:
+            raise InputError("`scheme` must be a plan of site orders (permutation_plan()), not "
+                             "a custom_plan().")
+        return scheme
+    if scheme is not None and scheme not in SCHEMES:
+        raise InputError(f"`scheme` must be one of {format_items(SCHEMES)} or a plan from "
+                         f"permutation_plan(); got {scheme!r}.")
+    return permutation_plan(n, scheme or ("strata" if strata is not None else "free"),
+                            strata=strata, n_resamples=n_resamples, rng=rng)
+
+
+def align_strata(strata: object, labels: pd.Index) -> object:
+    """Strata given as a labelled Series are put in site order; other sequences are positional."""
+    if strata is None:
+        return None
+    if isinstance(strata, pd.Series) and not isinstance(strata.index, pd.RangeIndex):
+        check_labels_match(labels, strata.index, left_name="the matrices",
+                           right_name="`strata`",
+                           fix="Give one stratum label for every site of the matrices.")
+        return strata.loc[labels].to_numpy()
+    return strata
