@@ -8,6 +8,7 @@ the arrangement of those results into tables.
 
 from __future__ import annotations
 
+import numpy as np
 import pandas as pd
 
 from .._errors import InputError, format_items
@@ -129,6 +130,8 @@ def environment_step(ctx: Context) -> None:
             f"environmental table (it has {format_items(env.columns)}). Fix [hypotheses] or "
             "`design.covariables`.", columns=absent)
     ctx.results["environment"] = _analysis_environment(ctx)
+    logs = set(ctx.settings["environment.log10"])
+    ctx.results["analysis_names"] = {c: (f"log10({c})" if c in logs else c) for c in env.columns}
     distances = {}
     for name, variables in ctx.hypotheses.items():
         distances[name] = environmental_distance(_hypothesis_table(ctx, variables))
@@ -157,10 +160,13 @@ def geography_step(ctx: Context) -> None:
 
     if ctx.survey.locations is None:
         return
+    from ..distance import DistanceMatrix
+
     g = geographic_distance(ctx.survey.locations)
-    ctx.results["geography"] = g
+    km = DistanceMatrix(g.condensed / 1000.0, g.labels, metric=g.metric, validate=False)
+    ctx.results["geography"] = km
     ctx.methods.append(
-        f"Geographic distances between sites were {g.metric} distances in metres"
+        f"Geographic distances between sites were {g.metric} distances in kilometres"
         f"{' on the WGS84 ellipsoid (Karney 2013)' if g.metric == 'geodesic' else ''}.")
 
 
@@ -354,3 +360,397 @@ def biplot_step(ctx: Context) -> None:
                 res.scores, **kwargs)
     # the biplot goes first in the section
     sec.figures = dict(sorted(sec.figures.items(), key=lambda kv: kv[0] != "ordination_biplot"))
+
+
+# -------------------------------------------------------------------------- matrix stage
+def _predictors(ctx: Context) -> dict[str, object]:
+    """Every predictor distance matrix by name: hypotheses, covariables, geography."""
+    out: dict[str, object] = dict(ctx.results.get("hypothesis_distances", {}))
+    if "covariables" in ctx.results:
+        out["covariables"] = ctx.results["covariables"]
+    if "geography" in ctx.results:
+        out["geography"] = ctx.results["geography"]
+    return out
+
+
+def _spatial_kwargs(ctx: Context) -> dict[str, object]:
+    geo = ctx.results.get("geography")
+    if geo is None or ctx.settings["design.strata"]:
+        return {}
+    return {"spatial_null": geo, "n_surrogates": ctx.n_resamples}
+
+
+@step("mantel", "analyses.mantel")
+def mantel_step(ctx: Context) -> None:
+    from ..matrix import mantel
+
+    community = ctx.results["community"]
+    preds = _predictors(ctx)
+    preds.pop("covariables", None)
+    if not preds:
+        return
+    rows = []
+    results = {}
+    for name, d in preds.items():
+        spatial = _spatial_kwargs(ctx) if name != "geography" else {}
+        res = mantel(d, community, n_resamples=ctx.n_resamples, rng=ctx.rng(f"mantel:{name}"),
+                     strata=_strata(ctx), **spatial)
+        results[name] = res
+        rows.append({"predictor": name, "statistic": res.statistic, "pvalue": res.pvalue,
+                     "pvalue_spatial": res.pvalue_spatial, "method": res.method,
+                     "n_sites": res.n_sites, "n_pairs": res.n_pairs,
+                     "n_resamples": res.n_resamples, "exact": res.exact})
+    ctx.results["mantel"] = results
+    table = pd.DataFrame(rows).set_index("predictor")
+    if table["pvalue_spatial"].isna().all():
+        table = table.drop(columns="pvalue_spatial")
+    sec = Section("mantel", "Mantel tests: community turnover against each predictor")
+    sec.paragraphs.append(
+        "Correlation (Mantel r) between community dissimilarity and the environmental distance "
+        "of each hypothesis, and geographic distance, each on its own. A positive r means "
+        "sites that differ more in the predictor differ more in their communities.")
+    if "pvalue_spatial" in table.columns:
+        sec.paragraphs.append(
+            "pvalue_spatial is the p-value against a spatially constrained null (Moran "
+            "spectral randomisation of the predictor, Wagner & Dray 2015), which keeps the "
+            "spatial structure of the data; it guards against the too-small p-values that "
+            "spatial autocorrelation gives ordinary Mantel tests.")
+    sec.tables["mantel"] = table
+    sec.shown.append("mantel")
+    for res in results.values():
+        sec.notes.extend(n for n in res.notes if n not in sec.notes)
+    ctx.sections.append(sec)
+    ctx.methods.append(
+        "Mantel tests (Mantel 1967; Pearson r, sites permuted) of community dissimilarity "
+        "against each predictor gave " + "; ".join(
+            f"{n} r = {r.statistic:.3f} ({_fmt_p(r.pvalue)}"
+            + (f", spatially constrained {_fmt_p(r.pvalue_spatial)}"
+               if r.pvalue_spatial is not None else "") + ")"
+            for n, r in results.items()) + ".")
+
+
+@step("partial_mantel", "analyses.partial_mantel")
+def partial_mantel_step(ctx: Context) -> None:
+    from ..matrix import partial_mantel
+
+    community = ctx.results["community"]
+    hyp = ctx.results.get("hypothesis_distances", {})
+    preds = _predictors(ctx)
+    if not hyp or len(preds) < 2:
+        return
+    rows = []
+    results = {}
+    for name, d in hyp.items():
+        controls = {k: v for k, v in preds.items() if k != name}
+        res = partial_mantel(d, community, controls, permute="residuals",
+                             n_resamples=ctx.n_resamples, rng=ctx.rng(f"partial:{name}"),
+                             strata=_strata(ctx), **_spatial_kwargs(ctx))
+        results[name] = res
+        rows.append({"hypothesis": name, "controls": ", ".join(res.controls),
+                     "statistic": res.statistic, "r_simple": res.r_xy, "pvalue": res.pvalue,
+                     "pvalue_spatial": res.pvalue_spatial, "permute": res.permute,
+                     "n_resamples": res.n_resamples})
+    ctx.results["partial_mantel"] = results
+    table = pd.DataFrame(rows).set_index("hypothesis")
+    if table["pvalue_spatial"].isna().all():
+        table = table.drop(columns="pvalue_spatial")
+    sec = Section("partial_mantel", "Partial Mantel tests: each hypothesis given the others")
+    sec.paragraphs.append(
+        "Correlation between community dissimilarity and each hypothesis' environmental "
+        "distance after the other hypotheses, the covariables and geographic distance are "
+        "regressed out of both (r_simple is the correlation before). The residuals of the "
+        "hypothesis distance on the controls were permuted (Freedman & Lane 1983), the method "
+        "Legendre (2000) recommends for partial Mantel tests.")
+    sec.tables["partial_mantel"] = table
+    sec.shown.append("partial_mantel")
+    for res in results.values():
+        sec.notes.extend(n for n in res.notes if n not in sec.notes)
+    ctx.sections.append(sec)
+    ctx.methods.append(
+        "Partial Mantel tests (Smouse, Long & Sokal 1986) of each hypothesis controlling for "
+        "the others" + (", the covariables" if "covariables" in preds else "")
+        + (" and geographic distance" if "geography" in preds else "")
+        + ", permuting residuals of the reduced model (Legendre 2000), gave " + "; ".join(
+            f"{n} r = {r.statistic:.3f} ({_fmt_p(r.pvalue)})" for n, r in results.items())
+        + ".")
+
+
+@step("regression", "analyses.regression")
+def regression_step(ctx: Context) -> None:
+    from ..matrix import matrix_regression
+
+    preds = _predictors(ctx)
+    if not preds:
+        return
+    res = matrix_regression(ctx.results["community"], preds, n_resamples=ctx.n_resamples,
+                            rng=ctx.rng("regression"), strata=_strata(ctx))
+    ctx.results["regression"] = res
+    table = res.table.copy()
+    table.index.name = "predictor"
+    fit = pd.DataFrame({"r2": [res.r2], "pvalue": [res.pvalue], "f_statistic": [res.f_statistic],
+                        "intercept": [res.intercept], "n_sites": [res.n_sites],
+                        "n_pairs": [res.n_pairs], "n_resamples": [res.n_resamples]},
+                       index=pd.Index(["model"], name="fit"))
+    sec = Section("regression", "Multiple regression on distance matrices")
+    sec.paragraphs.append(
+        f"Community dissimilarity regressed on every predictor distance together (Lichstein "
+        f"2007): R2 = {res.r2:.3f} ({_fmt_p(res.pvalue)}). std_coefficient is the change in "
+        "community dissimilarity, in standard deviations, per standard deviation of the "
+        "predictor distance with the others held fixed; each is tested by permuting the "
+        "community matrix. A variance inflation factor (vif) above about 5 means the "
+        "predictor is hard to separate from the others.")
+    sec.tables["matrix_regression"] = table
+    sec.tables["matrix_regression_fit"] = fit
+    sec.shown.append("matrix_regression")
+    sec.notes.extend(res.notes)
+    ctx.sections.append(sec)
+    ctx.methods.append(
+        f"A multiple regression on distance matrices (Lichstein 2007) of community "
+        f"dissimilarity on {', '.join(preds)} had R2 = {res.r2:.3f} ({_fmt_p(res.pvalue)}); "
+        + "; ".join(f"{n} standardised coefficient {row.std_coefficient:.3f} "
+                    f"({_fmt_p(row.pvalue)})" for n, row in res.table.iterrows()) + ".")
+
+
+@step("correlogram", "analyses.correlogram")
+def correlogram_step(ctx: Context) -> None:
+    from ..matrix import mantel_correlogram
+
+    geo = ctx.results.get("geography")
+    if geo is None:
+        raise Skip("no site locations were given")
+    res = mantel_correlogram(ctx.results["community"], geo, n_resamples=ctx.n_resamples,
+                             rng=ctx.rng("correlogram"), strata=_strata(ctx))
+    ctx.results["correlogram"] = res
+    table = res.table.copy()
+    table.index.name = "class"
+    sec = Section("correlogram", "Mantel correlogram: community similarity across distance")
+    sec.paragraphs.append(
+        "Mantel correlation between community dissimilarity and membership of each class of "
+        "geographic distance (Oden & Sokal 1986); positive values mean sites in that class are "
+        "more alike than average. p-values are corrected progressively (Holm) from the "
+        "shortest class; classes with few pairs are shown but not tested.")
+    sec.tables["correlogram"] = table
+    sec.shown.append("correlogram")
+    sec.notes.extend(res.notes)
+    ctx.sections.append(sec)
+    fig_table = pd.DataFrame({
+        "midpoint": table["midpoint"], "statistic": table["statistic"],
+        "pvalue": table["pvalue"], "pvalue_adjusted": table["pvalue_adjusted"],
+        "n_pairs": table["n_pairs"], "flagged": ~table["tested"].astype(bool)})
+    _add_figure(ctx, sec, "correlogram", "Mantel correlogram; filled marks are significant after "
+                "the progressive Holm correction.", "correlogram", fig_table,
+                alpha=ctx.settings["output.level"], distance_unit="km")
+    tested = table[table["tested"].astype(bool)]
+    sig = tested[tested["pvalue_adjusted"] <= ctx.settings["output.level"]]
+    ctx.methods.append(
+        f"A Mantel correlogram over {len(table)} distance classes (Sturges' rule) found "
+        f"{len(sig)} of {len(tested)} tested classes significant after progressive Holm "
+        "correction.")
+
+
+BOUNDED = ("bray-curtis", "jaccard", "sorensen", "ruzicka", "kulczynski", "morisita-horn")
+
+
+@step("distance_decay", "analyses.distance_decay")
+def distance_decay_step(ctx: Context) -> None:
+    from ..matrix import distance_decay
+
+    geo = ctx.results.get("geography")
+    if geo is None:
+        raise Skip("no site locations were given")
+    d = ctx.results["community"]
+    if d.metric not in BOUNDED:
+        raise Skip(f"{d.metric} dissimilarities are not bounded by 1, so 1 - d is not a "
+                   "similarity; choose a bounded dissimilarity such as bray-curtis")
+    res = distance_decay(d, geo, rng=ctx.rng("distance_decay"), n_boot=ctx.n_resamples)
+    ctx.results["distance_decay"] = res
+    sec = Section("distance_decay", "Distance decay of community similarity")
+    halving = (f"a halving distance of {res.halving:.1f} km (95 % interval "
+               f"{res.halving_interval[0]:.1f} to {res.halving_interval[1]:.1f} km, bootstrap "
+               "of sites)" if np.isfinite(res.halving) else "no decline (slope not negative)")
+    sec.paragraphs.append(
+        f"Similarity (1 - dissimilarity) against geographic distance, {res.model} model "
+        f"ln S = a + b g (Nekola & White 1999): slope {res.slope:.4f} per km, {halving}. "
+        "Intervals come from resampling sites, because pairs of sites are not independent.")
+    table = res.table.copy()
+    table.index.name = "parameter"
+    sec.tables["distance_decay"] = table
+    sec.tables["distance_decay_curve"] = res.curve
+    sec.shown.append("distance_decay")
+    sec.notes.extend(res.notes)
+    ctx.sections.append(sec)
+    pairs = res.pairs[res.pairs["used"].astype(bool)]
+    _add_figure(ctx, sec, "distance_decay", "Community similarity of each pair of sites against "
+                "their distance, with the fitted decay curve.", "distance_decay_plot",
+                pairs, res.curve,
+                halving=float(res.halving) if np.isfinite(res.halving) else None,
+                distance_unit="km")
+    ctx.methods.append(
+        f"Distance decay of similarity was fitted with the {res.model} model (Nekola & White "
+        f"1999): slope {res.slope:.4f} per km, {halving}.")
+
+
+# ---------------------------------------------------------------------------- verdicts
+#: Correlation between two predictor distance matrices above which their effects are called
+#: hard to separate (common practice for collinearity screening).
+COLLINEAR_R = 0.7
+#: Fewer sites than this get the small-sample caveat (common practice).
+SMALL_N = 20
+
+
+def _holm(p: pd.Series) -> pd.Series:
+    from statsmodels.stats.multitest import multipletests
+
+    ok = p.notna()
+    out = pd.Series(np.nan, index=p.index)
+    if ok.any():
+        out[ok] = multipletests(p[ok].to_numpy(), method="holm")[1]
+    return out
+
+
+def _predictor_correlations(preds: dict[str, object]) -> pd.DataFrame:
+    """Pearson correlations among the predictor matrices' off-diagonal entries (descriptive)."""
+    names = list(preds)
+    first = preds[names[0]]
+    vectors = [first.condensed if n == names[0] else preds[n].align(first).condensed
+               for n in names]
+    r = np.corrcoef(np.vstack(vectors)) if len(names) > 1 else np.ones((1, 1))
+    return pd.DataFrame(r, index=pd.Index(names, name="predictor"), columns=names)
+
+
+@step("verdicts", "analyses.verdicts")
+def verdicts_step(ctx: Context) -> None:
+    hyp = ctx.results.get("hypothesis_distances", {})
+    if not hyp:
+        return
+    level = ctx.settings["output.level"]
+    partial = ctx.results.get("partial_mantel") or {}
+    simple = ctx.results.get("mantel") or {}
+    reg = ctx.results.get("regression")
+    vec = ctx.results.get("vectors")
+    if not partial and not simple and reg is None:
+        return
+    preds = _predictors(ctx)
+    corr = _predictor_correlations(preds)
+    n_sites = ctx.results["community"].n
+    spatial = []
+    geo_mantel = simple.get("geography")
+    if geo_mantel is not None and geo_mantel.pvalue <= level:
+        spatial.append(f"community turnover rises with geographic distance (Mantel r = "
+                       f"{geo_mantel.statistic:.2f}, {_fmt_p(geo_mantel.pvalue)})")
+    cg = ctx.results.get("correlogram")
+    if cg is not None:
+        first = cg.table[cg.table["tested"].astype(bool)].head(1)
+        if len(first) and float(first["pvalue_adjusted"].iloc[0]) <= level:
+            spatial.append("nearby sites are more alike than average (first correlogram class)")
+    rows = []
+    for name in hyp:
+        row: dict[str, object] = {"hypothesis": name,
+                                  "variables": ", ".join(ctx.hypotheses[name])}
+        if name in partial:
+            r = partial[name]
+            row.update({"partial_mantel_r": r.statistic, "partial_mantel_pvalue": r.pvalue})
+            if r.pvalue_spatial is not None:
+                row["partial_mantel_pvalue_spatial"] = r.pvalue_spatial
+            row["controls"] = ", ".join(r.controls)
+        elif name in simple:
+            r = simple[name]
+            row.update({"mantel_r": r.statistic, "mantel_pvalue": r.pvalue, "controls": "none"})
+        if reg is not None and name in reg.table.index:
+            t = reg.table.loc[name]
+            row.update({"regression_std_coefficient": t["std_coefficient"],
+                        "regression_pvalue": t["pvalue"], "vif": t["vif"]})
+        if vec is not None:
+            names = [ctx.results["analysis_names"].get(v, v) for v in ctx.hypotheses[name]]
+            names = [v for v in names if v in vec.table.index]
+            if names:
+                best = vec.table.loc[names, "r2"].idxmax()
+                row.update({"best_vector": best, "vector_r2": vec.table.loc[best, "r2"],
+                            "vector_pvalue": vec.table.loc[best, "pvalue"]})
+        rows.append(row)
+    table = pd.DataFrame(rows).set_index("hypothesis")
+    pcol = "partial_mantel_pvalue" if "partial_mantel_pvalue" in table else "mantel_pvalue"
+    rcol = "partial_mantel_r" if "partial_mantel_r" in table else "mantel_r"
+    if pcol in table:
+        table.insert(table.columns.get_loc(pcol) + 1, pcol + "_holm", _holm(table[pcol]))
+    verdicts, caveats, summary = [], [], []
+    for name, row in table.iterrows():
+        checks = []
+        if pcol in table and pd.notna(row.get(pcol)):
+            checks.append(bool(row[pcol + "_holm"] <= level and row[rcol] > 0))
+        if "regression_pvalue" in table and pd.notna(row.get("regression_pvalue")):
+            checks.append(bool(row["regression_pvalue"] <= level
+                               and row["regression_std_coefficient"] > 0))
+        if checks and all(checks):
+            verdict = "supported"
+        elif any(checks):
+            verdict = "partly supported"
+        else:
+            verdict = "not supported"
+        notes = []
+        if spatial:
+            notes.append("spatially structured turnover: Mantel-type p-values may be too small "
+                         "(Guillot & Rousset 2013)")
+        sp = row.get("partial_mantel_pvalue_spatial")
+        if sp is not None and pd.notna(sp) and sp > level and row.get(pcol, 1) <= level:
+            notes.append(f"not significant against the spatially constrained null ({_fmt_p(sp)})")
+        if "geography" not in preds:
+            notes.append("space not controlled (no site locations)")
+        if n_sites < SMALL_N:
+            notes.append(f"small sample ({n_sites} sites): low power, unstable estimates")
+        others = corr.loc[name].drop(name)
+        high = others[others.abs() > COLLINEAR_R]
+        if len(high):
+            notes.append("collinear with " + ", ".join(f"{k} (r = {v:.2f})"
+                                                        for k, v in high.items())
+                         + ": their effects are hard to separate")
+        vif = row.get("vif")
+        if vif is not None and pd.notna(vif) and vif > 5 and not len(high):
+            notes.append(f"variance inflation factor {vif:.1f}: shares much with the others")
+        verdicts.append(verdict)
+        caveats.append("; ".join(notes) if notes else "none")
+        bits = []
+        if pcol in table and pd.notna(row.get(pcol)):
+            bits.append(f"{'partial ' if rcol.startswith('partial') else ''}Mantel r = "
+                        f"{row[rcol]:.2f}, {_fmt_p(row[pcol])}")
+        if "regression_pvalue" in table and pd.notna(row.get("regression_pvalue")):
+            bits.append(f"regression coefficient {row['regression_std_coefficient']:.2f}, "
+                        f"{_fmt_p(row['regression_pvalue'])}")
+        summary.append(f"{name}: {verdict} ({'; '.join(bits)}).")
+    table.insert(0, "verdict", verdicts)
+    table["caveats"] = caveats
+    ctx.results["verdicts"] = table
+    ctx.results["summary"] = summary
+    sec = Section("verdicts", "Hypothesis verdicts")
+    sec.paragraphs.append(
+        "Each named hypothesis was tested against community turnover while controlling for the "
+        "others and for space. A hypothesis is 'supported' when both the partial Mantel test "
+        f"(Holm-adjusted across hypotheses) and its regression coefficient are positive and "
+        f"significant at {level}, 'partly supported' when one of them is, and 'not supported' "
+        "otherwise. Read the verdicts with their caveats: they describe association in this "
+        "survey, not cause, and they are screening evidence for a professional judgement.")
+    sec.tables["hypothesis_verdicts"] = table
+    sec.tables["predictor_correlations"] = corr
+    sec.shown += ["hypothesis_verdicts", "predictor_correlations"]
+    if spatial:
+        sec.paragraphs.append("Space: " + "; ".join(spatial) + ". Simple and partial Mantel "
+                              "tests can then give p-values that are too small; the "
+                              "spatially constrained p-values, where given, are the safer "
+                              "guide.")
+    ctx.sections.insert(0, sec)
+    plot_rows = []
+    for name, row in table.iterrows():
+        if rcol in table and pd.notna(row.get(rcol)):
+            plot_rows.append({"hypothesis": name, "method": rcol.replace("_r", "").replace(
+                "_", " "), "statistic": row[rcol], "pvalue": row[pcol]})
+        if "regression_pvalue" in table and pd.notna(row.get("regression_pvalue")):
+            plot_rows.append({"hypothesis": name, "method": "regression (std. coefficient)",
+                              "statistic": row["regression_std_coefficient"],
+                              "pvalue": row["regression_pvalue"]})
+    if plot_rows:
+        _add_figure(ctx, sec, "hypotheses", "Effect size of each hypothesis; filled marks are "
+                    f"significant at {level} (raw p-values).", "hypothesis_plot",
+                    pd.DataFrame(plot_rows), alpha=level, xlabel="Effect size")
+    ctx.methods.append(
+        "Verdicts per hypothesis: " + " ".join(summary)
+        + " Partial Mantel p-values were Holm-adjusted across hypotheses for the verdicts.")
