@@ -89,7 +89,7 @@ def geographic_distance(
     >>> sites = gpd.GeoDataFrame(geometry=[Point(144.0, -37.0), Point(144.0, -38.0)],
     ...                          index=["a", "b"], crs="EPSG:4326")
     >>> round(geographic_distance(sites)["a", "b"])
-    111023
+    110987
     """
     check_choice("method", method, GEOGRAPHIC_METHODS)
     out_dtype = np.dtype(np.float64 if dtype is None else dtype)

@@ -373,7 +373,7 @@ class DistanceMatrix:
         Gower (1966) [1]_: a distance matrix is Euclidean exactly when ``G`` is positive
         semi-definite, which is also when a principal coordinate analysis has no negative
         eigenvalues. The eigenvalues are computed here with :func:`scipy.linalg.eigh`, which costs
-        ``O(n^3)``: about a minute for ``n = 5000``.
+        ``O(n^3)``: about a second for ``n = 1000``, a minute or more for ``n = 5000``.
 
         References
         ----------

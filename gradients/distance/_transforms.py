@@ -132,7 +132,7 @@ def transform_community(table: object, method: str) -> TransformResult:
     >>> import pandas as pd
     >>> from gradients import transform_community
     >>> t = pd.DataFrame({"a": [1, 3], "b": [3, 1]}, index=["s1", "s2"])
-    >>> transform_community(t, "relative").table.loc["s1", "b"]
+    >>> float(transform_community(t, "relative").table.loc["s1", "b"])
     0.75
     """
     check_choice("method", method, tuple(COMMUNITY_TRANSFORMS))
