@@ -273,7 +273,10 @@ def _set_title(ax: Axes, title: str | None, default: str, notes: Sequence[str] =
     notes = [n for n in notes if n]
     if notes:
         ax.set_title(
-            "  ·  ".join(notes), loc="right", fontsize=SIZES["note"], color=MUTED,
+            "  ·  ".join(notes),
+            loc="right",
+            fontsize=SIZES["note"],
+            color=MUTED,
             fontweight="normal",
         )
 
@@ -400,8 +403,9 @@ def ordination_biplot(
             arr["pvalue"] = pd.to_numeric(arr["pvalue"], errors="coerce")
     cen = None
     if centroids is not None:
-        cen = _frame(centroids, "centroids", ["factor", "level", a1, a2], finite=[a1, a2],
-                     min_rows=0)
+        cen = _frame(
+            centroids, "centroids", ["factor", "level", a1, a2], finite=[a1, a2], min_rows=0
+        )
     tax = None
     if taxa is not None:
         tax = _frame(taxa, "taxa", [a1, a2], finite=[a1, a2], min_rows=0)
@@ -455,42 +459,114 @@ def ordination_biplot(
 
     # sites
     if grp is None:
-        ax.scatter(x, y, s=s_site, marker="o", facecolor=PALETTE[0], edgecolor="white",
-                   linewidth=0.5, zorder=3, label="_gr:sites",
-                   rasterized=len(sc) > RASTER_THRESHOLD)
+        ax.scatter(
+            x,
+            y,
+            s=s_site,
+            marker="o",
+            facecolor=PALETTE[0],
+            edgecolor="white",
+            linewidth=0.5,
+            zorder=3,
+            label="_gr:sites",
+            rasterized=len(sc) > RASTER_THRESHOLD,
+        )
     else:
         missing = grp.isna().to_numpy()
         levels = list(dict.fromkeys(grp[~missing].tolist()))
         for i, level in enumerate(levels):
             mask = (grp == level).fillna(False).to_numpy(dtype=bool) & ~missing
             colour, marker = group_style(i)
-            ax.scatter(x[mask], y[mask], s=s_site, marker=marker, facecolor=colour,
-                       edgecolor="white", linewidth=0.5, zorder=3, label="_gr:sites",
-                       rasterized=len(sc) > RASTER_THRESHOLD)
-            handles.append(Line2D([], [], ls="none", marker=marker, color=colour,
-                                  markeredgecolor="white", markersize=6, label=_text(level)))
+            ax.scatter(
+                x[mask],
+                y[mask],
+                s=s_site,
+                marker=marker,
+                facecolor=colour,
+                edgecolor="white",
+                linewidth=0.5,
+                zorder=3,
+                label="_gr:sites",
+                rasterized=len(sc) > RASTER_THRESHOLD,
+            )
+            handles.append(
+                Line2D(
+                    [],
+                    [],
+                    ls="none",
+                    marker=marker,
+                    color=colour,
+                    markeredgecolor="white",
+                    markersize=6,
+                    label=_text(level),
+                )
+            )
         if missing.any():
-            ax.scatter(x[missing], y[missing], s=s_site, marker="o", facecolor=HOLLOW,
-                       edgecolor=MUTED, linewidth=0.8, zorder=3, label="_gr:sites")
-            handles.append(Line2D([], [], ls="none", marker="o", markerfacecolor=HOLLOW,
-                                  markeredgecolor=MUTED, markersize=6, label="no group"))
+            ax.scatter(
+                x[missing],
+                y[missing],
+                s=s_site,
+                marker="o",
+                facecolor=HOLLOW,
+                edgecolor=MUTED,
+                linewidth=0.8,
+                zorder=3,
+                label="_gr:sites",
+            )
+            handles.append(
+                Line2D(
+                    [],
+                    [],
+                    ls="none",
+                    marker="o",
+                    markerfacecolor=HOLLOW,
+                    markeredgecolor=MUTED,
+                    markersize=6,
+                    label="no group",
+                )
+            )
     if labels:
         for lab, xi, yi in zip(sc.index, x, y, strict=True):
-            ax.annotate(_text(lab, 24), (xi, yi), xytext=(3, 3), textcoords="offset points",
-                        fontsize=6.0, color=MUTED, zorder=4)
+            ax.annotate(
+                _text(lab, 24),
+                (xi, yi),
+                xytext=(3, 3),
+                textcoords="offset points",
+                fontsize=6.0,
+                color=MUTED,
+                zorder=4,
+            )
 
     # taxa
     if tax is not None and len(tax):
         tx, ty = tax[a1].to_numpy(), tax[a2].to_numpy()
-        ax.scatter(tx, ty, s=SIZES["taxon"], marker="+", color=MUTED, linewidth=0.8,
-                   zorder=2.5, label="_gr:taxa")
+        ax.scatter(
+            tx,
+            ty,
+            s=SIZES["taxon"],
+            marker="+",
+            color=MUTED,
+            linewidth=0.8,
+            zorder=2.5,
+            label="_gr:taxa",
+        )
         show = taxon_labels if taxon_labels is not None else len(tax) <= 30
         if show:
             for lab, xi, yi in zip(tax.index, tx, ty, strict=True):
-                ax.annotate(_text(lab, 28), (xi, yi), xytext=(2, -2), textcoords="offset points",
-                            fontsize=6.0, color=MUTED, style="italic", va="top", zorder=2.5)
-        handles.append(Line2D([], [], ls="none", marker="+", color=MUTED, markersize=6,
-                              label="taxa"))
+                ax.annotate(
+                    _text(lab, 28),
+                    (xi, yi),
+                    xytext=(2, -2),
+                    textcoords="offset points",
+                    fontsize=6.0,
+                    color=MUTED,
+                    style="italic",
+                    va="top",
+                    zorder=2.5,
+                )
+        handles.append(
+            Line2D([], [], ls="none", marker="+", color=MUTED, markersize=6, label="taxa")
+        )
 
     notes: list[str] = []
     if stress is not None:
@@ -515,31 +591,51 @@ def ordination_biplot(
         for name, (tx_, ty_), ok in zip(arr.index, tips, sig, strict=True):
             colour = INK if ok else FADED
             patch = FancyArrowPatch(
-                (0.0, 0.0), (tx_, ty_),
-                arrowstyle="-|>,head_length=5,head_width=2.6" if ok
+                (0.0, 0.0),
+                (tx_, ty_),
+                arrowstyle="-|>,head_length=5,head_width=2.6"
+                if ok
                 else "->,head_length=5,head_width=2.6",
                 linestyle="-" if ok else (0, (3.0, 2.0)),
-                linewidth=SIZES["arrow_width"], color=colour, shrinkA=0, shrinkB=0,
-                mutation_scale=1.0, zorder=5 if ok else 4.5,
+                linewidth=SIZES["arrow_width"],
+                color=colour,
+                shrinkA=0,
+                shrinkB=0,
+                mutation_scale=1.0,
+                zorder=5 if ok else 4.5,
                 label="_gr:arrow" if ok else "_gr:arrow-faded",
             )
             ax.add_patch(patch)
             norm = math.hypot(tx_, ty_) or 1.0
             ux, uy = tx_ / norm, ty_ / norm
             ax.annotate(
-                _text(name, 28), (tx_, ty_), xytext=(5 * ux, 5 * uy), textcoords="offset points",
+                _text(name, 28),
+                (tx_, ty_),
+                xytext=(5 * ux, 5 * uy),
+                textcoords="offset points",
                 ha="left" if ux > 0.25 else "right" if ux < -0.25 else "center",
                 va="bottom" if uy > 0.25 else "top" if uy < -0.25 else "center",
-                fontsize=SIZES["label"], color=INK if ok else MUTED,
-                fontweight="bold" if ok else "normal", zorder=6,
+                fontsize=SIZES["label"],
+                color=INK if ok else MUTED,
+                fontweight="bold" if ok else "normal",
+                zorder=6,
             )
         # arrows are patches: extend the data limits by hand so every tip and label fits
         ax.update_datalim(np.vstack([tips * 1.12, [[0.0, 0.0]]]))
         if "pvalue" in arr.columns:
-            handles.append(Line2D([], [], color=INK, lw=SIZES["arrow_width"],
-                                  label=f"vector, p ≤ {alpha:g}"))
-            handles.append(Line2D([], [], color=FADED, lw=SIZES["arrow_width"],
-                                  ls=(0, (3.0, 2.0)), label=f"vector, p > {alpha:g}"))
+            handles.append(
+                Line2D([], [], color=INK, lw=SIZES["arrow_width"], label=f"vector, p ≤ {alpha:g}")
+            )
+            handles.append(
+                Line2D(
+                    [],
+                    [],
+                    color=FADED,
+                    lw=SIZES["arrow_width"],
+                    ls=(0, (3.0, 2.0)),
+                    label=f"vector, p > {alpha:g}",
+                )
+            )
         else:
             handles.append(Line2D([], [], color=INK, lw=SIZES["arrow_width"], label="vector"))
 
@@ -547,15 +643,45 @@ def ordination_biplot(
     if cen is not None and len(cen):
         several = cen["factor"].nunique(dropna=False) > 1
         cx, cy = cen[a1].to_numpy(), cen[a2].to_numpy()
-        ax.scatter(cx, cy, s=SIZES["centroid"], marker="P", facecolor=INK, edgecolor="white",
-                   linewidth=0.8, zorder=6, label="_gr:centroids")
+        ax.scatter(
+            cx,
+            cy,
+            s=SIZES["centroid"],
+            marker="P",
+            facecolor=INK,
+            edgecolor="white",
+            linewidth=0.8,
+            zorder=6,
+            label="_gr:centroids",
+        )
         for (_, row), xi, yi in zip(cen.iterrows(), cx, cy, strict=True):
-            text = f"{_text(row['factor'], 18)}: {_text(row['level'], 22)}" if several else \
-                _text(row["level"], 28)
-            ax.annotate(text, (xi, yi), xytext=(5, -5), textcoords="offset points",
-                        fontsize=SIZES["label"], color=INK, va="top", zorder=6)
-        handles.append(Line2D([], [], ls="none", marker="P", color=INK,
-                              markeredgecolor="white", markersize=8, label="factor centroid"))
+            text = (
+                f"{_text(row['factor'], 18)}: {_text(row['level'], 22)}"
+                if several
+                else _text(row["level"], 28)
+            )
+            ax.annotate(
+                text,
+                (xi, yi),
+                xytext=(5, -5),
+                textcoords="offset points",
+                fontsize=SIZES["label"],
+                color=INK,
+                va="top",
+                zorder=6,
+            )
+        handles.append(
+            Line2D(
+                [],
+                [],
+                ls="none",
+                marker="P",
+                color=INK,
+                markeredgecolor="white",
+                markersize=8,
+                label="factor centroid",
+            )
+        )
 
     if axis_titles is not None:
         xt, yt = (_text(t, 60) for t in axis_titles)
@@ -637,8 +763,9 @@ def surface_contours(
     if not isinstance(variable, str) or not variable:
         raise InputError(f"`variable` must be the name of the fitted variable; got {variable!r}.")
     sc = _frame(scores, "scores", [a1, a2], finite=[a1, a2])
-    gr = _frame(grid, "grid", ["x", "y", "fitted"], finite=["x", "y"], numeric=["fitted"],
-                min_rows=4)
+    gr = _frame(
+        grid, "grid", ["x", "y", "fitted"], finite=["x", "y"], numeric=["fitted"], min_rows=4
+    )
     if gr.duplicated(["x", "y"]).any():
         dup = gr.loc[gr.duplicated(["x", "y"]), ["x", "y"]].head(3).to_numpy().tolist()
         raise InputError(
@@ -682,20 +809,23 @@ def surface_contours(
             )
     con = None
     if contours is not None:
-        con = _frame(contours, "contours", ["level", "path", "x", "y"],
-                     finite=["level", "x", "y"], min_rows=0)
+        con = _frame(
+            contours,
+            "contours",
+            ["level", "path", "x", "y"],
+            finite=["level", "x", "y"],
+            min_rows=0,
+        )
 
     fig, ax = _new_axes(size)
     ax.set_aspect("equal", adjustable="datalim")
     ax.grid(False)
     zm = np.ma.masked_invalid(z)
-    filled = ax.contourf(xs, ys, zm, levels=lv, cmap=SEQUENTIAL_CMAP, extend="neither",
-                         zorder=1)
+    filled = ax.contourf(xs, ys, zm, levels=lv, cmap=SEQUENTIAL_CMAP, extend="neither", zorder=1)
     filled.set_label("_gr:surface")
     fmt = _format_number
     if con is None:
-        lines = ax.contour(xs, ys, zm, levels=lv, colors=INK, linewidths=SIZES["thin"],
-                           zorder=2)
+        lines = ax.contour(xs, ys, zm, levels=lv, colors=INK, linewidths=SIZES["thin"], zorder=2)
         lines.set_label("_gr:contours")
         ax.clabel(lines, fmt=fmt, fontsize=6.0, inline=True, inline_spacing=2)
     else:
@@ -703,12 +833,28 @@ def surface_contours(
             px, py = part["x"].to_numpy(), part["y"].to_numpy()
             ax.plot(px, py, color=INK, lw=SIZES["thin"], zorder=2, label="_gr:contours")
             mid = len(px) // 2
-            ax.text(px[mid], py[mid], fmt(float(part["level"].iloc[0])), fontsize=6.0,
-                    color=INK, ha="center", va="center", zorder=2.5,
-                    bbox={"boxstyle": "round,pad=0.15", "fc": "white", "ec": "none",
-                          "alpha": 0.8})
-    ax.scatter(sc[a1].to_numpy(), sc[a2].to_numpy(), s=SIZES["site"] * 0.8, marker="o",
-               facecolor=HOLLOW, edgecolor=INK, linewidth=0.8, zorder=3, label="_gr:sites")
+            ax.text(
+                px[mid],
+                py[mid],
+                fmt(float(part["level"].iloc[0])),
+                fontsize=6.0,
+                color=INK,
+                ha="center",
+                va="center",
+                zorder=2.5,
+                bbox={"boxstyle": "round,pad=0.15", "fc": "white", "ec": "none", "alpha": 0.8},
+            )
+    ax.scatter(
+        sc[a1].to_numpy(),
+        sc[a2].to_numpy(),
+        s=SIZES["site"] * 0.8,
+        marker="o",
+        facecolor=HOLLOW,
+        edgecolor=INK,
+        linewidth=0.8,
+        zorder=3,
+        label="_gr:sites",
+    )
     bar = fig.colorbar(filled, ax=ax, shrink=0.85, aspect=24, pad=0.02)
     bar.set_label(_text(variable, 40))
     bar.outline.set_visible(False)
@@ -765,18 +911,38 @@ def shepard_diagram(
     .. [1] Kruskal, J. B. (1964). Psychometrika 29, 1-27.
     """
     size = _check_figsize(figsize, (4.8, 4.3))
-    sh = _frame(shepard, "shepard", ["dissimilarity", "distance", "fitted"],
-                finite=["dissimilarity", "distance", "fitted"])
+    sh = _frame(
+        shepard,
+        "shepard",
+        ["dissimilarity", "distance", "fitted"],
+        finite=["dissimilarity", "distance", "fitted"],
+    )
     if stress is not None:
         stress = _check_number(stress, "stress")
     fig, ax = _new_axes(size)
     n = len(sh)
-    ax.scatter(sh["dissimilarity"].to_numpy(), sh["distance"].to_numpy(),
-               s=7 if n > 300 else 12, marker="o", color=PALETTE[0], alpha=_point_alpha(n),
-               linewidth=0, zorder=2, label="_gr:pairs", rasterized=n > RASTER_THRESHOLD)
+    ax.scatter(
+        sh["dissimilarity"].to_numpy(),
+        sh["distance"].to_numpy(),
+        s=7 if n > 300 else 12,
+        marker="o",
+        color=PALETTE[0],
+        alpha=_point_alpha(n),
+        linewidth=0,
+        zorder=2,
+        label="_gr:pairs",
+        rasterized=n > RASTER_THRESHOLD,
+    )
     order = np.lexsort((sh["fitted"].to_numpy(), sh["dissimilarity"].to_numpy()))
-    ax.plot(sh["dissimilarity"].to_numpy()[order], sh["fitted"].to_numpy()[order],
-            drawstyle="steps-post", color=ACCENT, lw=SIZES["line"], zorder=3, label="_gr:fit")
+    ax.plot(
+        sh["dissimilarity"].to_numpy()[order],
+        sh["fitted"].to_numpy()[order],
+        drawstyle="steps-post",
+        color=ACCENT,
+        lw=SIZES["line"],
+        zorder=3,
+        label="_gr:fit",
+    )
     ax.set_xlabel(_text(xlabel, 60) if xlabel is not None else "Community dissimilarity")
     ax.set_ylabel("Distance in the ordination")
     notes = [f"stress {stress:.3f}"] if stress is not None else []
@@ -784,8 +950,9 @@ def shepard_diagram(
     _set_title(ax, title, "Shepard diagram", notes)
     ax.legend(
         handles=[
-            Line2D([], [], ls="none", marker="o", color=PALETTE[0], markersize=4,
-                   label="site pair"),
+            Line2D(
+                [], [], ls="none", marker="o", color=PALETTE[0], markersize=4, label="site pair"
+            ),
             Line2D([], [], color=ACCENT, lw=SIZES["line"], label="monotone fit"),
         ],
         loc="upper left",
@@ -848,8 +1015,13 @@ def correlogram(
     alpha = _check_alpha(alpha)
     size = _check_figsize(figsize, (6.2, 3.8))
     cols = ["midpoint", "statistic", "pvalue", "pvalue_adjusted", "n_pairs", "flagged"]
-    tb = _frame(table, "table", cols, finite=["midpoint"],
-                numeric=["statistic", "pvalue", "pvalue_adjusted", "n_pairs"])
+    tb = _frame(
+        table,
+        "table",
+        cols,
+        finite=["midpoint"],
+        numeric=["statistic", "pvalue", "pvalue_adjusted", "n_pairs"],
+    )
     flag_raw = tb["flagged"]
     if flag_raw.isna().any() or not all(
         isinstance(v, bool | np.bool_) or v in (0, 1) for v in flag_raw.tolist()
@@ -873,31 +1045,71 @@ def correlogram(
             if not m.any():
                 continue
             ink = FADED if flag else PALETTE[0]
-            ax.scatter(mx[m], st[m], s=SIZES["class"], marker="D" if flag else "o",
-                       facecolor=ink if filled else HOLLOW, edgecolor=ink, linewidth=1.1,
-                       zorder=3, label="_gr:classes-filled" if filled else "_gr:classes-hollow")
+            ax.scatter(
+                mx[m],
+                st[m],
+                s=SIZES["class"],
+                marker="D" if flag else "o",
+                facecolor=ink if filled else HOLLOW,
+                edgecolor=ink,
+                linewidth=1.1,
+                zorder=3,
+                label="_gr:classes-filled" if filled else "_gr:classes-hollow",
+            )
     for xi, npairs in zip(mx, tb["n_pairs"].to_numpy(), strict=True):
         if math.isfinite(npairs):
-            ax.annotate(f"{int(npairs)}", (xi, 0), xycoords=("data", "axes fraction"),
-                        xytext=(0, 3), textcoords="offset points", ha="center", va="bottom",
-                        fontsize=5.8, color=MUTED)
+            ax.annotate(
+                f"{int(npairs)}",
+                (xi, 0),
+                xycoords=("data", "axes fraction"),
+                xytext=(0, 3),
+                textcoords="offset points",
+                ha="center",
+                va="bottom",
+                fontsize=5.8,
+                color=MUTED,
+            )
     lo, hi = ax.get_ylim()
     span = max(hi - lo, 1e-9)
     ax.set_ylim(lo - 0.12 * span, hi)  # room for the pair counts
     ax.set_xlabel(_unit("Distance class (midpoint)", distance_unit))
     ax.set_ylabel(_text(statistic_label, 40))
-    _set_title(ax, title, "Mantel correlogram",
-               [f"{len(tb)} classes", "numbers: pairs per class"])
+    _set_title(ax, title, "Mantel correlogram", [f"{len(tb)} classes", "numbers: pairs per class"])
     handles = [
-        Line2D([], [], ls="none", marker="o", markerfacecolor=PALETTE[0],
-               markeredgecolor=PALETTE[0], markersize=6,
-               label=f"significant after correction (p ≤ {alpha:g})"),
-        Line2D([], [], ls="none", marker="o", markerfacecolor=HOLLOW,
-               markeredgecolor=PALETTE[0], markersize=6, label="not significant"),
+        Line2D(
+            [],
+            [],
+            ls="none",
+            marker="o",
+            markerfacecolor=PALETTE[0],
+            markeredgecolor=PALETTE[0],
+            markersize=6,
+            label=f"significant after correction (p ≤ {alpha:g})",
+        ),
+        Line2D(
+            [],
+            [],
+            ls="none",
+            marker="o",
+            markerfacecolor=HOLLOW,
+            markeredgecolor=PALETTE[0],
+            markersize=6,
+            label="not significant",
+        ),
     ]
     if flagged.any():
-        handles.append(Line2D([], [], ls="none", marker="D", markerfacecolor=HOLLOW,
-                              markeredgecolor=FADED, markersize=5.5, label="too few pairs"))
+        handles.append(
+            Line2D(
+                [],
+                [],
+                ls="none",
+                marker="D",
+                markerfacecolor=HOLLOW,
+                markeredgecolor=FADED,
+                markersize=5.5,
+                label="too few pairs",
+            )
+        )
     fig.legend(handles=handles, loc="outside lower center", ncols=len(handles))
     return fig
 
@@ -959,35 +1171,70 @@ def distance_decay_plot(
     pr = _frame(pairs, "pairs", ["distance", "similarity"], finite=["distance", "similarity"])
     cv = None
     if curve is not None:
-        cv = _frame(curve, "curve", ["distance", "fitted"], finite=["distance", "fitted"],
-                    min_rows=2).sort_values("distance", kind="stable")
+        cv = _frame(
+            curve, "curve", ["distance", "fitted"], finite=["distance", "fitted"], min_rows=2
+        ).sort_values("distance", kind="stable")
     if halving is not None:
         halving = _check_number(halving, "halving", positive=True)
     unit = _text(distance_unit, 20) if distance_unit else ""
     fig, ax = _new_axes(size)
     n = len(pr)
-    ax.scatter(pr["distance"].to_numpy(), pr["similarity"].to_numpy(), s=7 if n > 300 else 12,
-               marker="o", color=PALETTE[0], alpha=_point_alpha(n), linewidth=0, zorder=2,
-               label="_gr:pairs", rasterized=n > RASTER_THRESHOLD)
-    handles: list[Any] = [Line2D([], [], ls="none", marker="o", color=PALETTE[0],
-                                 markersize=4, label="site pair")]
+    ax.scatter(
+        pr["distance"].to_numpy(),
+        pr["similarity"].to_numpy(),
+        s=7 if n > 300 else 12,
+        marker="o",
+        color=PALETTE[0],
+        alpha=_point_alpha(n),
+        linewidth=0,
+        zorder=2,
+        label="_gr:pairs",
+        rasterized=n > RASTER_THRESHOLD,
+    )
+    handles: list[Any] = [
+        Line2D([], [], ls="none", marker="o", color=PALETTE[0], markersize=4, label="site pair")
+    ]
     if cv is not None:
-        ax.plot(cv["distance"].to_numpy(), cv["fitted"].to_numpy(), color=ACCENT,
-                lw=SIZES["line"] + 0.3, zorder=4, label="_gr:curve")
+        ax.plot(
+            cv["distance"].to_numpy(),
+            cv["fitted"].to_numpy(),
+            color=ACCENT,
+            lw=SIZES["line"] + 0.3,
+            zorder=4,
+            label="_gr:curve",
+        )
         handles.append(Line2D([], [], color=ACCENT, lw=SIZES["line"] + 0.3, label="fitted decay"))
     notes = [f"{n} pairs"]
     if halving is not None:
         text = f"halving distance {_format_number(halving)}{' ' + unit if unit else ''}"
         if halving <= 1.5 * float(pr["distance"].max()):
-            ax.axvline(halving, color=INK, lw=0.9, ls=(0, (4.0, 2.5)), zorder=3,
-                       label="_gr:halving")
+            ax.axvline(
+                halving, color=INK, lw=0.9, ls=(0, (4.0, 2.5)), zorder=3, label="_gr:halving"
+            )
             if cv is not None:
                 yh = float(np.interp(halving, cv["distance"], cv["fitted"]))
-                ax.scatter([halving], [yh], s=34, marker="o", facecolor=HOLLOW, edgecolor=INK,
-                           linewidth=1.1, zorder=5, label="_gr:halving-point")
-            ax.annotate(text, (halving, 1.0), xycoords=("data", "axes fraction"),
-                        xytext=(4, -4), textcoords="offset points", ha="left", va="top",
-                        fontsize=SIZES["label"], color=INK)
+                ax.scatter(
+                    [halving],
+                    [yh],
+                    s=34,
+                    marker="o",
+                    facecolor=HOLLOW,
+                    edgecolor=INK,
+                    linewidth=1.1,
+                    zorder=5,
+                    label="_gr:halving-point",
+                )
+            ax.annotate(
+                text,
+                (halving, 1.0),
+                xycoords=("data", "axes fraction"),
+                xytext=(4, -4),
+                textcoords="offset points",
+                ha="left",
+                va="top",
+                fontsize=SIZES["label"],
+                color=INK,
+            )
         else:
             notes.append(text + " (beyond the data)")
     ax.set_xlabel(_unit("Distance between sites", unit or None))
@@ -1058,8 +1305,9 @@ def ranking_plot(
     if not isinstance(value, str):
         raise InputError(f"`value` must be a column name; got {value!r}.")
     required = [value] + ([pvalue] if pvalue is not None else [])
-    tb = _frame(table, "table", required, finite=[value],
-                numeric=[pvalue] if pvalue is not None else [])
+    tb = _frame(
+        table, "table", required, finite=[value], numeric=[pvalue] if pvalue is not None else []
+    )
     if top is not None:
         if not isinstance(top, int | np.integer) or isinstance(top, bool) or top < 1:
             raise InputError(f"`top` must be a positive integer; got {top!r}.")
@@ -1075,20 +1323,37 @@ def ranking_plot(
     ax.grid(axis="y", visible=False)
     pos = np.arange(n)[::-1]
     colour = PALETTE[0]
-    bars = ax.barh(pos, vals, height=0.62, color=[colour if s else HOLLOW for s in sig],
-                   edgecolor=colour, linewidth=1.0, zorder=2, label="_gr:bars")
+    bars = ax.barh(
+        pos,
+        vals,
+        height=0.62,
+        color=[colour if s else HOLLOW for s in sig],
+        edgecolor=colour,
+        linewidth=1.0,
+        zorder=2,
+        label="_gr:bars",
+    )
     ax.set_yticks(pos, labels=names)
     ax.tick_params(axis="y", length=0)
     ax.spines["left"].set_visible(False)
     ax.axvline(0.0, color=MUTED, lw=0.8, zorder=3)
     span = float(np.max(np.abs(vals))) if n else 1.0
-    for p_, v, row_p in zip(pos, vals, (tb[pvalue] if pvalue is not None else [np.nan] * n),
-                            strict=True):
+    for p_, v, row_p in zip(
+        pos, vals, (tb[pvalue] if pvalue is not None else [np.nan] * n), strict=True
+    ):
         text = _format_number(float(v))
         if pvalue is not None:
             text += f"  ({_format_p(float(row_p))})"
-        ax.annotate(text, (v, p_), xytext=(3 if v >= 0 else -3, 0), textcoords="offset points",
-                    ha="left" if v >= 0 else "right", va="center", fontsize=6.3, color=MUTED)
+        ax.annotate(
+            text,
+            (v, p_),
+            xytext=(3 if v >= 0 else -3, 0),
+            textcoords="offset points",
+            ha="left" if v >= 0 else "right",
+            va="center",
+            fontsize=6.3,
+            color=MUTED,
+        )
     lo = min(0.0, float(vals.min())) if n else 0.0
     hi = max(0.0, float(vals.max())) if n else 1.0
     pad = 0.38 * (span or 1.0)
@@ -1102,7 +1367,8 @@ def ranking_plot(
                 Patch(facecolor=colour, edgecolor=colour, label=f"p ≤ {alpha:g}"),
                 Patch(facecolor=HOLLOW, edgecolor=colour, label=f"p > {alpha:g}"),
             ],
-            loc="outside lower center", ncols=2,
+            loc="outside lower center",
+            ncols=2,
         )
     del bars
     return fig
@@ -1166,12 +1432,9 @@ def hypothesis_plot(
     required = [effect, pvalue]
     if interval is not None:
         if not isinstance(interval, tuple | list) or len(interval) != 2:
-            raise InputError(
-                f"`interval` must name two columns (lower, upper); got {interval!r}."
-            )
+            raise InputError(f"`interval` must name two columns (lower, upper); got {interval!r}.")
         required += [str(interval[0]), str(interval[1])]
-    tb = _frame(table, "table", required, finite=[effect],
-                numeric=[pvalue, *(required[2:])])
+    tb = _frame(table, "table", required, finite=[effect], numeric=[pvalue, *(required[2:])])
     names = _row_labels(tb, label)
     order = list(dict.fromkeys(names))
     has_method = method is not None and method in tb.columns
@@ -1196,23 +1459,44 @@ def hypothesis_plot(
             lo_, hi_ = tb[required[2]].to_numpy(), tb[required[3]].to_numpy()
             for k in np.flatnonzero(in_m):
                 if math.isfinite(lo_[k]) and math.isfinite(hi_[k]):
-                    ax.plot([lo_[k], hi_[k]], [ys[k], ys[k]], color=colour, lw=1.0, zorder=2,
-                            label="_gr:interval")
+                    ax.plot(
+                        [lo_[k], hi_[k]],
+                        [ys[k], ys[k]],
+                        color=colour,
+                        lw=1.0,
+                        zorder=2,
+                        label="_gr:interval",
+                    )
         for filled in (True, False):
             sel = in_m & (sig == filled)
             if sel.any():
-                ax.scatter(eff[sel], ys[sel], s=SIZES["dot"], marker=marker,
-                           facecolor=colour if filled else HOLLOW, edgecolor=colour,
-                           linewidth=1.2, zorder=3,
-                           label="_gr:dots-filled" if filled else "_gr:dots-hollow")
+                ax.scatter(
+                    eff[sel],
+                    ys[sel],
+                    s=SIZES["dot"],
+                    marker=marker,
+                    facecolor=colour if filled else HOLLOW,
+                    edgecolor=colour,
+                    linewidth=1.2,
+                    zorder=3,
+                    label="_gr:dots-filled" if filled else "_gr:dots-hollow",
+                )
         if has_method:
-            handles.append(Line2D([], [], ls="none", marker=marker, color=colour, markersize=6,
-                                  label=m))
+            handles.append(
+                Line2D([], [], ls="none", marker=marker, color=colour, markersize=6, label=m)
+            )
     pv = tb[pvalue].to_numpy()
     for e, y, p in zip(eff, ys, pv, strict=True):
-        ax.annotate(f"{_format_number(float(e))} ({_format_p(float(p))})", (e, y),
-                    xytext=(7, 0), textcoords="offset points", ha="left", va="center",
-                    fontsize=6.3, color=MUTED)
+        ax.annotate(
+            f"{_format_number(float(e))} ({_format_p(float(p))})",
+            (e, y),
+            xytext=(7, 0),
+            textcoords="offset points",
+            ha="left",
+            va="center",
+            fontsize=6.3,
+            color=MUTED,
+        )
     ax.set_yticks([ypos[h] for h in order], labels=order)
     ax.tick_params(axis="y", length=0)
     ax.spines["left"].set_visible(False)
@@ -1226,14 +1510,33 @@ def hypothesis_plot(
             hi = max(hi, float(np.nanmax(ends)))
     span = (hi - lo) or 1.0
     ax.set_xlim(lo - 0.08 * span, hi + 0.45 * span)
-    ax.set_xlabel(_text(xlabel, 60) if xlabel is not None else
-                  f"Effect size ({VALUE_NAMES.get(effect, effect)})")
+    ax.set_xlabel(
+        _text(xlabel, 60)
+        if xlabel is not None
+        else f"Effect size ({VALUE_NAMES.get(effect, effect)})"
+    )
     _set_title(ax, title, "Hypotheses against community turnover", [f"{n_h} hypotheses"])
     handles += [
-        Line2D([], [], ls="none", marker="o", markerfacecolor=INK, markeredgecolor=INK,
-               markersize=6, label=f"p ≤ {alpha:g}"),
-        Line2D([], [], ls="none", marker="o", markerfacecolor=HOLLOW, markeredgecolor=INK,
-               markersize=6, label=f"p > {alpha:g}"),
+        Line2D(
+            [],
+            [],
+            ls="none",
+            marker="o",
+            markerfacecolor=INK,
+            markeredgecolor=INK,
+            markersize=6,
+            label=f"p ≤ {alpha:g}",
+        ),
+        Line2D(
+            [],
+            [],
+            ls="none",
+            marker="o",
+            markerfacecolor=HOLLOW,
+            markeredgecolor=INK,
+            markersize=6,
+            label=f"p > {alpha:g}",
+        ),
     ]
     fig.legend(handles=handles, loc="outside lower center", ncols=min(len(handles), 4))
     return fig
@@ -1276,12 +1579,12 @@ def turnover_curves(
         Panels sharing the vertical scale (so heights compare across variables), each with its
         curve (``_gr:curve``) and the total turnover in its title.
     """
-    cv = _frame(curves, "curves", ["variable", "value", "turnover"],
-                finite=["value", "turnover"])
+    cv = _frame(curves, "curves", ["variable", "value", "turnover"], finite=["value", "turnover"])
     if not isinstance(ncols, int | np.integer) or isinstance(ncols, bool) or ncols < 1:
         raise InputError(f"`ncols` must be a positive integer; got {ncols!r}.")
-    parts = {k: g.sort_values("value", kind="stable") for k, g in cv.groupby(
-        "variable", sort=False)}
+    parts = {
+        k: g.sort_values("value", kind="stable") for k, g in cv.groupby("variable", sort=False)
+    }
     total = {k: float(g["turnover"].max() - g["turnover"].min()) for k, g in parts.items()}
     order = sorted(parts, key=lambda k: -total[k])
     n = len(order)
@@ -1298,18 +1601,42 @@ def turnover_curves(
         g = parts[key]
         for side in ("left", "bottom"):
             ax.spines[side].set_position(("outward", 3))
-        ax.fill_between(g["value"].to_numpy(), g["turnover"].min(), g["turnover"].to_numpy(),
-                        color=PALETTE[0], alpha=0.12, linewidth=0, zorder=1)
-        ax.plot(g["value"].to_numpy(), g["turnover"].to_numpy(), color=PALETTE[0],
-                lw=SIZES["line"], zorder=2, label="_gr:curve")
+        ax.fill_between(
+            g["value"].to_numpy(),
+            g["turnover"].min(),
+            g["turnover"].to_numpy(),
+            color=PALETTE[0],
+            alpha=0.12,
+            linewidth=0,
+            zorder=1,
+        )
+        ax.plot(
+            g["value"].to_numpy(),
+            g["turnover"].to_numpy(),
+            color=PALETTE[0],
+            lw=SIZES["line"],
+            zorder=2,
+            label="_gr:curve",
+        )
         ax.set_title(f"{_text(key, 28)}", loc="left", fontsize=8.5)
-        ax.set_title(f"total {_format_number(total[key])}", loc="right", fontsize=6.8,
-                     color=MUTED, fontweight="normal")
+        ax.set_title(
+            f"total {_format_number(total[key])}",
+            loc="right",
+            fontsize=6.8,
+            color=MUTED,
+            fontweight="normal",
+        )
         ax.tick_params(labelsize=6.8)
         if i % nc == 0:
             ax.set_ylabel(_text(ylabel, 40))
-    fig.suptitle(_text(title, 90) if title is not None else "Turnover along each gradient",
-                 x=0.012, ha="left", fontsize=10.0, fontweight="bold", color=INK)
+    fig.suptitle(
+        _text(title, 90) if title is not None else "Turnover along each gradient",
+        x=0.012,
+        ha="left",
+        fontsize=10.0,
+        fontweight="bold",
+        color=INK,
+    )
     return fig
 
 
@@ -1353,10 +1680,12 @@ def partition_plot(
     names = _row_labels(tb, label)
     vals = tb[value].to_numpy()
     is_resid = np.array([n.strip().lower() == "residual" for n in names])
-    drawn = [(n, float(v)) for n, v, r in zip(names, vals, is_resid, strict=True)
-             if v > 0 and not r]
-    negative = [(n, float(v)) for n, v, r in zip(names, vals, is_resid, strict=True)
-                if v <= 0 and not r]
+    drawn = [
+        (n, float(v)) for n, v, r in zip(names, vals, is_resid, strict=True) if v > 0 and not r
+    ]
+    negative = [
+        (n, float(v)) for n, v, r in zip(names, vals, is_resid, strict=True) if v <= 0 and not r
+    ]
     resid = float(vals[is_resid][0]) if is_resid.any() else 1.0 - sum(v for _, v in drawn)
     fig, ax = _new_axes(size)
     ax.grid(False)
@@ -1372,15 +1701,33 @@ def partition_plot(
             face = PALETTE[colour_i % len(PALETTE)]
             colour_i += 1
             hatch = "////" if ("shared" in name.lower() or "&" in name) else None
-        ax.barh([0], [v], left=left, height=0.55, color=face, edgecolor=INK, linewidth=0.7,
-                hatch=hatch, zorder=2, label="_gr:fractions")
+        ax.barh(
+            [0],
+            [v],
+            left=left,
+            height=0.55,
+            color=face,
+            edgecolor=INK,
+            linewidth=0.7,
+            hatch=hatch,
+            zorder=2,
+            label="_gr:fractions",
+        )
         if v >= 0.04:
-            ax.text(left + v / 2, 0, f"{100 * v:.0f} %", ha="center", va="center",
-                    fontsize=7.0, color=INK if face in (HOLLOW, PALETTE[5], PALETTE[6],
-                                                        PALETTE[4]) else "white",
-                    fontweight="bold", zorder=3)
-        handles.append(Patch(facecolor=face, edgecolor=INK, hatch=hatch,
-                             label=f"{name} ({100 * v:.1f} %)"))
+            ax.text(
+                left + v / 2,
+                0,
+                f"{100 * v:.0f} %",
+                ha="center",
+                va="center",
+                fontsize=7.0,
+                color=INK if face in (HOLLOW, PALETTE[5], PALETTE[6], PALETTE[4]) else "white",
+                fontweight="bold",
+                zorder=3,
+            )
+        handles.append(
+            Patch(facecolor=face, edgecolor=INK, hatch=hatch, label=f"{name} ({100 * v:.1f} %)")
+        )
         left += v
     ax.set_xlim(0, max(1.0, left))
     ax.set_ylim(-0.6, 0.6)
@@ -1455,7 +1802,11 @@ def save_figure(
             if fmt == "png":
                 fig.savefig(path, format="png", dpi=int(dpi), metadata={"Software": None})
             else:
-                fig.savefig(path, format="svg", dpi=int(dpi),
-                            metadata={"Date": None, "Creator": "gradients"})
+                fig.savefig(
+                    path,
+                    format="svg",
+                    dpi=int(dpi),
+                    metadata={"Date": None, "Creator": "gradients"},
+                )
             written.append(path)
     return written
