@@ -177,16 +177,23 @@ def simulate_survey(
       the floodplain): a **weak** effect (each taxon's log-abundance shifted by N(0, 0.3) per
       level).
     - Space: two Gaussian random fields with exponential covariance (range 3 km) enter every
-      taxon with loadings N(0, 0.35) (a **weak** spatial structure); two more add spatially
+      taxon with loadings N(0, 0.4) (a **weak** spatial structure); two more add spatially
       autocorrelated noise to texture, pH and organic matter.
 
     **Community.** Taxon k has a Gaussian (unimodal) response to contamination (optimum
-    uniform in [-0.1, 1.1], tolerance in [0.18, 0.40]: **strong**) and to the fine fraction
-    (optimum in [0.25, 0.85], tolerance in [0.08, 0.20]: **moderate**), a maximum expected
+    uniform in [-0.1, 1.1], tolerance in [0.15, 0.35]: **strong**) and to the fine fraction
+    (optimum in [0.25, 0.85], tolerance in [0.12, 0.28]: **moderate**), a maximum expected
     count log-normal around 12 (the rare taxa: 0.3 to 1.5), and the spatial and habitat terms
     above. Counts are negative binomial with size 1.5 (gamma-Poisson). A site left with no
     individuals gets one of its most expected taxon, and a taxon never drawn gets one at its
     most favourable site, so the tables pass validation; both are rare and deterministic.
+
+    **How strong.** On the expected community (Hellinger-transformed expected counts), a
+    quadratic in the contamination gradient explains R^2 = 0.54, a quadratic in the fine
+    fraction 0.42, the two spatial fields 0.25, habitat 0.16 (the last two partly through their
+    correlation with the gradients); pH 0.02 and organic matter 0.02 (noise); conductivity 0.33
+    and log Cu 0.34 (through their correlation with texture and contamination). Contamination and
+    fine fraction correlate at r = -0.46 across sites (default seed).
 
     Only ``Generator`` methods (uniform, normal, standard_normal, gamma, poisson, random) and
     a Cholesky factor are used, so the result depends only on the seed and numpy's PCG64
@@ -249,12 +256,12 @@ def simulate_survey(
     k = n_taxa
     n_rare = max(1, round(0.15 * k))
     opt_c = rng.uniform(-0.1, 1.1, size=k)
-    tol_c = rng.uniform(0.18, 0.40, size=k)
+    tol_c = rng.uniform(0.15, 0.35, size=k)
     opt_f = rng.uniform(0.25, 0.85, size=k)
-    tol_f = rng.uniform(0.08, 0.20, size=k)
+    tol_f = rng.uniform(0.12, 0.28, size=k)
     peak = np.exp(rng.normal(np.log(12.0), 0.8, size=k))
     peak[k - n_rare:] = rng.uniform(0.3, 1.5, size=n_rare)
-    loadings = rng.normal(0.0, 0.35, size=(2, k))
+    loadings = rng.normal(0.0, 0.4, size=(2, k))
     habitat_effect = rng.normal(0.0, 0.3, size=(len(HABITATS), k))
 
     log_mu = (np.log(peak)[None, :]
