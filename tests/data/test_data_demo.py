@@ -61,8 +61,9 @@ def test_bad_arguments():
 def test_planted_contamination_gradient(scenario):
     env = scenario.survey(censored="half-limit").environment
     truth = scenario.site_truth
-    assert np.allclose(truth["distance_to_works_km"],
-                       np.hypot(truth["x_km"] - TELLMARK_WORKS[0], truth["y_km"] - TELLMARK_WORKS[1]))
+    dx = truth["x_km"] - TELLMARK_WORKS[0]
+    dy = truth["y_km"] - TELLMARK_WORKS[1]
+    assert np.allclose(truth["distance_to_works_km"], np.hypot(dx, dy))
     for metal in ("Cu", "Zn", "Pb", "Cd"):
         rho = stats.spearmanr(env[metal], truth["distance_to_works_km"]).statistic
         assert rho < -0.6, metal
