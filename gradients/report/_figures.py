@@ -332,7 +332,8 @@ def ordination_biplot(
     groups : Series, optional
         Group of each site, indexed by site label; every site in `scores` must be present
         (extra sites are ignored). Sites are coloured *and* shaped by group; missing values
-        form a grey "no group" class.
+        form a grey "no group" class. Groups are listed in order of first appearance, or in
+        category order for a categorical Series.
     taxa : DataFrame, optional
         Taxon scores, one row per taxon (index = taxon names) with columns ``axis1``,
         ``axis2``, drawn as small grey crosses.
@@ -473,7 +474,11 @@ def ordination_biplot(
         )
     else:
         missing = grp.isna().to_numpy()
-        levels = list(dict.fromkeys(grp[~missing].tolist()))
+        present = grp[~missing]
+        if isinstance(grp.dtype, pd.CategoricalDtype):
+            levels = [c for c in grp.cat.categories if bool((present == c).any())]
+        else:
+            levels = list(dict.fromkeys(present.tolist()))
         for i, level in enumerate(levels):
             mask = (grp == level).fillna(False).to_numpy(dtype=bool) & ~missing
             colour, marker = group_style(i)
@@ -757,6 +762,14 @@ def surface_contours(
     InputError
         Missing columns, non-numeric values, duplicate grid nodes, too small a grid, or no
         fitted value at all.
+
+    Examples
+    --------
+    >>> import numpy as np, pandas as pd
+    >>> s = pd.DataFrame({"axis1": [-1.0, 0.0, 1.0], "axis2": [0.0, 1.0, -1.0]})
+    >>> x, y = np.meshgrid(np.linspace(-1, 1, 5), np.linspace(-1, 1, 5))
+    >>> g = pd.DataFrame({"x": x.ravel(), "y": y.ravel(), "fitted": (x + y).ravel()})
+    >>> fig = surface_contours(s, g, variable="Cu", levels=4)
     """
     a1, a2 = _check_axes(axes)
     size = _check_figsize(figsize, (6.2, 4.9))
@@ -909,6 +922,13 @@ def shepard_diagram(
     References
     ----------
     .. [1] Kruskal, J. B. (1964). Psychometrika 29, 1-27.
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> t = pd.DataFrame({"dissimilarity": [0.2, 0.5, 0.9], "distance": [0.3, 0.4, 1.1],
+    ...                   "fitted": [0.3, 0.4, 1.1]})
+    >>> fig = shepard_diagram(t, stress=0.05)
     """
     size = _check_figsize(figsize, (4.8, 4.3))
     sh = _frame(
@@ -1011,6 +1031,14 @@ def correlogram(
     References
     ----------
     .. [1] Legendre, P. & Legendre, L. (2012). Numerical Ecology, 3rd English ed. Elsevier.
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> t = pd.DataFrame({"midpoint": [5.0, 15.0], "statistic": [0.2, -0.1],
+    ...                   "pvalue": [0.01, 0.3], "pvalue_adjusted": [0.02, 0.3],
+    ...                   "n_pairs": [40, 12], "flagged": [False, True]})
+    >>> fig = correlogram(t, distance_unit="km")
     """
     alpha = _check_alpha(alpha)
     size = _check_figsize(figsize, (6.2, 3.8))
@@ -1166,6 +1194,14 @@ def distance_decay_plot(
     References
     ----------
     .. [1] Nekola, J. C. & White, P. S. (1999). Journal of Biogeography 26, 867-878.
+
+    Examples
+    --------
+    >>> import numpy as np, pandas as pd
+    >>> d = np.linspace(0, 30, 50)
+    >>> pairs = pd.DataFrame({"distance": d, "similarity": 0.8 * np.exp(-d / 10)})
+    >>> curve = pd.DataFrame({"distance": d, "fitted": 0.8 * np.exp(-d / 10)})
+    >>> fig = distance_decay_plot(pairs, curve, halving=10 * np.log(2), distance_unit="km")
     """
     size = _check_figsize(figsize, (5.8, 4.2))
     pr = _frame(pairs, "pairs", ["distance", "similarity"], finite=["distance", "similarity"])
@@ -1300,6 +1336,12 @@ def ranking_plot(
         One bar per row (``_gr:bars`` container, top to bottom in decreasing `value`); filled
         bars are significant, hollow (white) bars are not; each bar is annotated with its
         value and p-value.
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> t = pd.DataFrame({"variable": ["Cu", "sand"], "r2": [0.5, 0.1], "pvalue": [0.001, 0.4]})
+    >>> fig = ranking_plot(t)
     """
     alpha = _check_alpha(alpha)
     if not isinstance(value, str):
@@ -1427,6 +1469,13 @@ def hypothesis_plot(
     matplotlib.figure.Figure
         Hypotheses top to bottom in the order of the table, a zero line, and each dot annotated
         with its effect and p-value.
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> t = pd.DataFrame({"hypothesis": ["contamination", "texture"],
+    ...                   "statistic": [0.31, 0.04], "pvalue": [0.002, 0.51]})
+    >>> fig = hypothesis_plot(t)
     """
     alpha = _check_alpha(alpha)
     required = [effect, pvalue]
@@ -1578,6 +1627,13 @@ def turnover_curves(
     matplotlib.figure.Figure
         Panels sharing the vertical scale (so heights compare across variables), each with its
         curve (``_gr:curve``) and the total turnover in its title.
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> c = pd.DataFrame({"variable": ["Cu"] * 3, "value": [0.0, 5.0, 10.0],
+    ...                   "turnover": [0.0, 0.4, 0.5]})
+    >>> fig = turnover_curves(c)
     """
     cv = _frame(curves, "curves", ["variable", "value", "turnover"], finite=["value", "turnover"])
     if not isinstance(ncols, int | np.integer) or isinstance(ncols, bool) or ncols < 1:
@@ -1674,6 +1730,13 @@ def partition_plot(
     matplotlib.figure.Figure
         A horizontal bar from 0 to 1 split into the fractions (``_gr:fractions``), each labelled
         with its share in percent, and a legend naming them.
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> f = pd.DataFrame({"fraction": ["contamination only", "space only", "shared"],
+    ...                   "r2_adjusted": [0.2, 0.1, 0.05]})
+    >>> fig = partition_plot(f)
     """
     size = _check_figsize(figsize, (6.6, 2.6))
     tb = _frame(fractions, "fractions", [value], finite=[value])
@@ -1776,6 +1839,15 @@ def save_figure(
     ``svg.hashsalt`` (stable clip-path identifiers), glyphs as paths from the font shipped with
     matplotlib, and metadata without a date; the PNG carries no software or date text. Byte
     equality across different matplotlib versions is not promised.
+
+    Examples
+    --------
+    >>> import pandas as pd, tempfile, pathlib
+    >>> fig = ranking_plot(pd.DataFrame({"r2": [0.4]}, index=["Cu"]), pvalue=None)
+    >>> with tempfile.TemporaryDirectory() as folder:
+    ...     paths = save_figure(fig, pathlib.Path(folder) / "ranking")
+    ...     [p.name for p in paths]
+    ['ranking.png', 'ranking.svg']
     """
     if not isinstance(fig, Figure):
         raise InputError(f"`fig` must be a matplotlib Figure; got {type(fig).__name__}.")

@@ -138,6 +138,11 @@ def test_biplot_groups_colour_and_shape(scores):
     assert len(shapes) == 3  # groups differ by marker shape, not only by colour
     legend_text = [t.get_text() for t in fig.legends[0].get_texts()]
     assert legend_text == ["upper", "lower", "middle", "no group"]
+    # a categorical Series keeps its category order (unused categories are left out)
+    ordered = pd.Categorical(groups, categories=["lower", "unused", "middle", "upper"])
+    fig = F.ordination_biplot(scores, groups=pd.Series(ordered, index=scores.index))
+    legend_text = [t.get_text() for t in fig.legends[0].get_texts()]
+    assert legend_text == ["lower", "middle", "upper", "no group"]
 
 
 def test_biplot_bad_inputs(scores, arrows):
