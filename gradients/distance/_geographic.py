@@ -145,7 +145,11 @@ def _points(locations: object) -> tuple[pd.Index, np.ndarray, pyproj.CRS]:
     if not isinstance(locations, gpd.GeoDataFrame | gpd.GeoSeries) and hasattr(
         locations, "locations"
     ):
+        owner = type(locations).__name__
         locations = locations.locations
+        if locations is None:
+            raise InputError(f"This {owner} has no `.locations`; site locations are needed for "
+                             "geographic distance.")
     if not isinstance(locations, gpd.GeoDataFrame | gpd.GeoSeries):
         raise InputError(
             "`locations` must be a geopandas GeoDataFrame (or GeoSeries) of points, index = "
@@ -284,65 +288,7 @@ def _in_stream(labels: pd.Index, xy: np.ndarray, crs: pyproj.CRS, network: objec
             sites=list(labels[far]),
         )
     along = shapely.line_locate_point(noded[nearest], points)
-    # nodes: vertices keyed by rounded coordinates; snap points added per line
-    node_ids: dict[tuple[float, float], int] = {}
-    prec = 1e-9 * max(1.0, float(np.max(np.abs(shapely.get_coordinates(noded)))))
-
-    def node_of(x: float, y: float) -> int:
-        key = (round(x / prec), round(y / prec))
-        got = node_ids.get(key)
-        if got is None:
-            got = len(node_ids)
-            node_ids[key] = got
-        return got
-
-    by_line: dict[int, list[int]] = {}
-    for k, li in enumerate(nearest):
-        by_line.setdefault(int(li), []).append(k)
-    site_node = np.empty(len(labels), dtype=np.int64)
-    us: list[int] = []
-    vs: list[int] = []
-    ws: list[float] = []
-    for li, line in enumerate(noded):
-        coords = shapely.get_coordinates(line)
-        seg = np.sqrt(np.sum(np.diff(coords, axis=0) ** 2, axis=1))
-        pos = np.concatenate([[0.0], np.cumsum(seg)])
-        chain_pos = list(pos)
-        chain_node = [node_of(cx, cy) for cx, cy in coords]
-        for k in by_line.get(li, []):
-            s = float(along[k])
-            hit = np.flatnonzero(np.abs(pos - s) <= prec)
-            if hit.size:
-                site_node[k] = chain_node[int(hit[0])]
-                continue
-            same = [m for m, q in enumerate(chain_pos) if abs(q - s) <= prec]
-            if same:
-                site_node[k] = chain_node[same[0]]
-                continue
-            new = len(node_ids)
-            node_ids[("site", k)] = new  # type: ignore[index]
-            chain_pos.append(s)
-            chain_node.append(new)
-            site_node[k] = new
-        order = np.argsort(chain_pos, kind="stable")
-        cp = np.asarray(chain_pos)[order]
-        cn = np.asarray(chain_node)[order]
-        us.extend(cn[:-1].tolist())
-        vs.extend(cn[1:].tolist())
-        ws.extend((np.diff(cp) * factor).tolist())
-    u = np.asarray(us, dtype=np.int64)
-    v = np.asarray(vs, dtype=np.int64)
-    w = np.asarray(ws, dtype=np.float64)
-    keep = u != v
-    u, v, w = np.minimum(u[keep], v[keep]), np.maximum(u[keep], v[keep]), w[keep]
-    # parallel pieces between the same two nodes: keep the shortest
-    order = np.lexsort((w, v, u))
-    u, v, w = u[order], v[order], w[order]
-    first = np.ones(u.size, dtype=bool)
-    first[1:] = (u[1:] != u[:-1]) | (v[1:] != v[:-1])
-    u, v, w = u[first], v[first], w[first]
-    m = len(node_ids)
-    graph = scipy.sparse.csr_matrix((w, (u, v)), shape=(m, m))
+    graph, site_node = _network_graph(noded, nearest, along)
     _, comp = connected_components(graph, directed=False)
     site_comp = comp[site_node]
     groups = pd.unique(site_comp)
@@ -356,7 +302,86 @@ def _in_stream(labels: pd.Index, xy: np.ndarray, crs: pyproj.CRS, network: objec
             sites=[p[0] for p in parts],
         )
     uniq, inv = np.unique(site_node, return_inverse=True)
-    paths = dijkstra(graph, directed=False, indices=uniq)[:, uniq]
-    full = paths[np.ix_(inv, inv)]
-    iu, ju = np.triu_indices(len(labels), k=1)
-    return DistanceMatrix(full[iu, ju], labels, metric="in-stream", dtype=dtype)
+    # one Dijkstra search per distinct site node, in chunks so that the (chunk x nodes) work
+    # array stays near 128 MB whatever the size of the network
+    m = graph.shape[0]
+    step = max(1, (2**27 // 8) // max(m, 1))
+    among = np.empty((uniq.size, uniq.size))
+    for a in range(0, uniq.size, step):
+        rows = dijkstra(graph, directed=False, indices=uniq[a : a + step])
+        among[a : a + step] = rows[:, uniq] * factor
+    n = len(labels)
+    out = np.empty(n * (n - 1) // 2, dtype=dtype)
+    pos = 0
+    for i in range(n - 1):
+        out[pos : pos + n - 1 - i] = among[inv[i], inv[i + 1 :]]
+        pos += n - 1 - i
+    return DistanceMatrix(out, labels, metric="in-stream", dtype=dtype)
+
+
+def _network_graph(
+    noded: np.ndarray, nearest: np.ndarray, along: np.ndarray
+) -> tuple[scipy.sparse.csr_matrix, np.ndarray]:
+    """Graph of a noded network with the sites inserted; edge weights in CRS units.
+
+    After noding, pieces meet only at their end points, so the nodes are the distinct end
+    points (matched to 1e-9 of the coordinate scale) plus one node per distinct snap position;
+    a piece with sites on it becomes a chain end - site - ... - end, weighted by the distance
+    along the piece.
+    """
+    length = shapely.length(noded)
+    ends = np.vstack([shapely.get_coordinates(shapely.get_point(noded, 0)),
+                      shapely.get_coordinates(shapely.get_point(noded, -1))])
+    prec = 1e-9 * max(1.0, float(np.max(np.abs(ends))))
+    _, ids = np.unique(np.round(ends / prec).astype(np.int64), axis=0, return_inverse=True)
+    ids = ids.reshape(-1)
+    k = noded.size
+    first, last = ids[:k], ids[k:]
+    n_nodes = int(ids.max()) + 1
+    with_sites = np.zeros(k, dtype=bool)
+    with_sites[nearest] = True
+    u = [first[~with_sites]]
+    v = [last[~with_sites]]
+    w = [length[~with_sites]]
+    site_node = np.empty(nearest.size, dtype=np.int64)
+    order = np.lexsort((along, nearest))
+    start = 0
+    while start < order.size:
+        line = nearest[order[start]]
+        stop = start
+        while stop < order.size and nearest[order[stop]] == line:
+            stop += 1
+        chain_pos = [0.0]
+        chain_node = [int(first[line])]
+        for s_idx in order[start:stop]:
+            s = float(along[s_idx])
+            if s <= prec:
+                site_node[s_idx] = first[line]
+            elif s >= length[line] - prec:
+                site_node[s_idx] = last[line]
+            elif s - chain_pos[-1] <= prec and len(chain_pos) > 1:
+                site_node[s_idx] = chain_node[-1]  # same place as the previous site
+            else:
+                chain_pos.append(s)
+                chain_node.append(n_nodes)
+                site_node[s_idx] = n_nodes
+                n_nodes += 1
+        chain_pos.append(float(length[line]))
+        chain_node.append(int(last[line]))
+        u.append(np.asarray(chain_node[:-1]))
+        v.append(np.asarray(chain_node[1:]))
+        w.append(np.diff(chain_pos))
+        start = stop
+    uu = np.concatenate(u).astype(np.int64)
+    vv = np.concatenate(v).astype(np.int64)
+    ww = np.concatenate(w).astype(np.float64)
+    keep = uu != vv
+    uu, vv, ww = np.minimum(uu[keep], vv[keep]), np.maximum(uu[keep], vv[keep]), ww[keep]
+    # parallel pieces between the same two nodes: keep the shortest
+    srt = np.lexsort((ww, vv, uu))
+    uu, vv, ww = uu[srt], vv[srt], ww[srt]
+    first_of_pair = np.ones(uu.size, dtype=bool)
+    first_of_pair[1:] = (uu[1:] != uu[:-1]) | (vv[1:] != vv[:-1])
+    uu, vv, ww = uu[first_of_pair], vv[first_of_pair], ww[first_of_pair]
+    graph = scipy.sparse.csr_matrix((ww, (uu, vv)), shape=(n_nodes, n_nodes))
+    return graph, site_node

@@ -23,7 +23,12 @@ def frame_from(table: object, *, attribute: str, name: str) -> pd.DataFrame:
     Checks that the site labels (the index) are unique and that the table is not empty.
     """
     if not isinstance(table, pd.DataFrame) and hasattr(table, attribute):
+        owner = type(table).__name__
         table = getattr(table, attribute)
+        if table is None:
+            raise InputError(
+                f"This {owner} has no `.{attribute}` table; the {name} is needed here."
+            )
     if not isinstance(table, pd.DataFrame):
         raise InputError(
             f"The {name} must be a pandas DataFrame with sites as rows (or an object with a "

@@ -416,6 +416,9 @@ def transform_environment(
             parts.append(pieces[c])
     result = pd.concat(parts, axis=1)
     details = pd.DataFrame(rows)
+    where = {c: k for k, c in enumerate(frame.columns)}
+    details = details.iloc[np.argsort([where[c] for c in details["column"]], kind="stable")]
+    details = details.reset_index(drop=True)
     if "skewness_before" not in details:
         details["skewness_before"] = np.nan
         details["skewness_after"] = np.nan

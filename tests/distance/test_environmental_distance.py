@@ -69,3 +69,11 @@ def test_survey_like():
         environment = _env()
 
     assert environmental_distance(Holder()) == environmental_distance(Holder.environment)
+
+
+def test_survey_without_environment_is_named():
+    class Holder:
+        environment = None
+
+    with pytest.raises(InputError, match=r"This Holder has no `\.environment` table"):
+        environmental_distance(Holder())

@@ -173,3 +173,19 @@ def test_in_stream_crs_errors():
         geographic_distance(sites.to_crs("EPSG:3857"), network=_river())
     with pytest.raises(InputError, match="projected CRS"):
         geographic_distance(sites.to_crs("EPSG:4326"), network=_river().to_crs("EPSG:4326"))
+
+
+def test_in_stream_on_a_grid_is_manhattan():
+    # theory: on a full rectangular grid of channels, the shortest path between two crossings
+    # has the L1 (Manhattan) length; every line here is one straight segment, so all joins
+    # come from noding the crossings. Reference: scipy pdist 'cityblock'.
+    coords = np.arange(0.0, 600.0, 100.0)
+    lines = [LineString([(0, c), (500, c)]) for c in coords]
+    lines += [LineString([(c, 0), (c, 500)]) for c in coords]
+    net = gpd.GeoDataFrame(geometry=lines, crs=CRS)
+    rng = np.random.default_rng(8)
+    xy = rng.choice(coords, size=(12, 2))
+    xy = np.unique(xy, axis=0)
+    sites = _sites(xy, [f"g{i}" for i in range(len(xy))])
+    d = geographic_distance(sites, network=net, snap_tolerance=1)
+    np.testing.assert_allclose(d.condensed, pdist(xy, "cityblock"), rtol=1e-12)
