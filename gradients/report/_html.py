@@ -20,6 +20,10 @@ from ._safety import esc
 
 __all__ = ["MAX_ROWS", "format_cell", "render_html"]
 
+#: Content security policy of the page: nothing may be loaded from anywhere, no script may
+#: run; only the inline stylesheet and the embedded (data: URL) figures are allowed.
+CSP = "default-src 'none'; img-src data:; style-src 'unsafe-inline'"
+
 #: Most rows of a table printed in the page; the full table is in ``tables/``.
 MAX_ROWS = 25
 
@@ -48,22 +52,34 @@ def format_cell(column: str, value: object) -> tuple[str, bool]:
     return str(value), False
 
 
-def table_html(name: str, frame: pd.DataFrame, *, limit: int = MAX_ROWS) -> str:
+#: Text cells longer than this get a wide column.
+LONG_TEXT = 40
+
+
+def table_html(name: str, frame: pd.DataFrame, *, limit: int = MAX_ROWS,
+               columns: list[str] | None = None) -> str:
     """An HTML table of ``frame`` (index included), at most ``limit`` rows."""
+    if columns:
+        frame = frame.loc[:, [c for c in columns if c in frame.columns]]
     shown = frame.head(limit)
     index_name = frame.index.name or ""
     has_index = not isinstance(frame.index, pd.RangeIndex)
     head = "".join(
         ([f'<th class="text">{esc(index_name)}</th>'] if has_index else [])
-        + [f'<th class="{"" if pd.api.types.is_numeric_dtype(frame[c]) else "text"}">'
-           f"{esc(c)}</th>" for c in frame.columns]
+        + [f'<th class="{"" if pd.api.types.is_numeric_dtype(frame[c]) else "text"}" '
+           f'title="{esc(c)}">{esc(str(c).replace("_", " "))}</th>' for c in frame.columns]
     )
     rows = []
     for label, row in shown.iterrows():
         cells = [f'<td class="text">{esc(label)}</td>'] if has_index else []
         for c in frame.columns:
             text, numeric = format_cell(str(c), row[c])
-            attr = "" if numeric else ' class="text"'
+            classes = [] if numeric else ["text"]
+            if not numeric and len(text) > LONG_TEXT:
+                classes.append("long")
+            if c == "verdict":
+                classes.append(_verdict_class(text))
+            attr = f' class="{" ".join(classes)}"' if classes else ""
             cells.append(f"<td{attr}>{esc(text)}</td>")
         rows.append("<tr>" + "".join(cells) + "</tr>")
     more = ""
@@ -100,7 +116,8 @@ def section_html(section: Section, figures: dict[str, bytes], files: dict[str, s
         del fig
     for name in section.shown:
         parts.append(f"<h3>{esc(name.replace('_', ' ').capitalize())}</h3>")
-        parts.append(table_html(name, section.tables[name]))
+        parts.append(table_html(name, section.tables[name],
+                                columns=section.display.get(name)))
     others = [n for n in section.tables if n not in section.shown]
     if others:
         links = ", ".join(f"<code>tables/{esc(n)}.csv</code>" for n in others)
@@ -171,6 +188,7 @@ def render_html(outcome: Outcome, figures: dict[str, bytes], files: dict[str, st
     return (
         "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">"
         '<meta name="viewport" content="width=device-width, initial-scale=1">'
+        f'<meta http-equiv="Content-Security-Policy" content="{CSP}">'
         f"<title>{esc(outcome.title)}</title><style>{_css()}</style></head><body>"
         f'<div class="page"><nav class="toc" aria-label="Contents"><ol>{"".join(toc)}</ol>'
         f'</nav><main><header class="title"><h1>{esc(outcome.title)}</h1>'

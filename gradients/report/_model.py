@@ -28,6 +28,8 @@ class Section:
     figures: dict[str, Any] = field(default_factory=dict)
     captions: dict[str, str] = field(default_factory=dict)
     notes: list[str] = field(default_factory=list)
+    #: Columns printed in the HTML for a shown table (all columns when absent).
+    display: dict[str, list[str]] = field(default_factory=dict)
 
 
 @dataclass

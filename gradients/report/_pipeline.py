@@ -63,13 +63,22 @@ class Context:
 
 Step = Callable[[Context], None]
 STEPS: list[tuple[str, str | None, Step]] = []
+#: Steps whose input errors stop the run (the rest of the job depends on them).
+REQUIRED: set[str] = set()
 
 
-def step(name: str, setting: str | None = None) -> Callable[[Step], Step]:
-    """Register a step; ``setting`` is the ``analyses.*`` switch that turns it off."""
+def step(name: str, setting: str | None = None, *,
+         required: bool = False) -> Callable[[Step], Step]:
+    """Register a step; ``setting`` is the ``analyses.*`` switch that turns it off.
+
+    An :class:`InputError` in a ``required`` step stops the run; in any other step it only
+    skips that analysis (listed with its reason in the report).
+    """
 
     def deco(func: Step) -> Step:
         STEPS.append((name, setting, func))
+        if required:
+            REQUIRED.add(name)
         return func
 
     return deco
@@ -94,6 +103,8 @@ def run_steps(ctx: Context, steps: list[tuple[str, str | None, Step]] | None = N
         except Skip as exc:
             ctx.skipped.append((name, str(exc)))
         except InputError as exc:
+            if name in REQUIRED:
+                raise
             ctx.skipped.append((name, str(exc)))
         finally:
             ctx.timings[name] = round(time.perf_counter() - start, 3)

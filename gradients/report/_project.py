@@ -107,6 +107,9 @@ SCHEMA: dict[str, dict[str, Key]] = {
         "ordination": Key("choice", "nmds", "Ordination of the community dissimilarities.",
                           choices=ORDINATIONS),
         "dimensions": Key("int", 2, "Number of ordination axes.", minimum=2),
+        "starts": Key("int", 20, "NMDS only: number of starting configurations (one from PCoA, "
+                      "the rest random); more starts make a poor local solution less likely.",
+                      minimum=1),
         "vectors": Key("bool", True, "Fit environmental variables as arrows on the ordination."),
         "factors": Key("bool", True, "Fit the `environment.factors` as class centroids."),
         "surfaces": Key("bool", True, "Fit the `environment.surfaces` as smooth surfaces."),

@@ -241,6 +241,7 @@ def run_project(project: str | Path | Project, *, out: str | Path | None = None,
     target = Path(out) if out is not None else Path(project["output.folder"])
     OutputFolder(target, force=force)  # refuse early, before minutes of computation
     survey = read_project_survey(project)
+    check_hypotheses(project, survey)
     s = project.settings
     inputs = {"community": s["inputs.community"], "environment": s["inputs.environment"],
               "locations": s["inputs.locations"]}

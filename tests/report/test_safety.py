@@ -82,7 +82,7 @@ def test_output_folder_is_atomic_and_never_overwrites(tmp_path: Path) -> None:
         assert not target.exists()  # nothing at the target until complete
         f.commit()
     assert (target / "tables" / "a.csv").read_text() == "1"
-    with pytest.raises(InputError, match="already exists.*--force"):
+    with pytest.raises(InputError, match=r"already exists.*--force"):
         OutputFolder(target)
     # a failure while writing leaves the old folder untouched and no partial folder behind
     with pytest.raises(ZeroDivisionError), OutputFolder(target, force=True) as f:
