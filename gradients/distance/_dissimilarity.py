@@ -127,7 +127,7 @@ METRICS: dict[str, Metric] = {
                         "Rao 1995; Legendre & Gallagher 2001", empty_site=True),
     "chord": Metric(_chord, "abundance", float(np.sqrt(2.0)), "Orlóci 1967", empty_site=True),
     "chi-square": Metric(_chi_square, "abundance", None,
-                         "Legendre & Legendre 2012, eq. 7.54", empty_site=True),
+                         "Legendre & Legendre 2012, D16", empty_site=True),
     "euclidean": Metric(_euclidean, "signed", None, "common practice"),
     "manhattan": Metric(_manhattan, "signed", None, "common practice"),
     "canberra": Metric(_canberra, "signed", None, "Lance & Williams 1966"),

@@ -53,7 +53,7 @@ def environmental_distance(
     Notes
     -----
     z-scoring puts variables measured in different units on one scale, so that each counts
-    according to its weight rather than its unit (Legendre & Legendre 2012, section 7.5 [1]_).
+    according to its weight rather than its unit (Legendre & Legendre 2012, ch. 7 [1]_).
     Missing values are an error for Euclidean distance (its message names the cells); Gower's
     coefficient leaves missing comparisons out pair by pair.
 

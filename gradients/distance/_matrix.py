@@ -312,7 +312,7 @@ class DistanceMatrix:
         Notes
         -----
         A metric dissimilarity satisfies the triangle inequality; Bray-Curtis, Kulczynski and
-        Morisita-Horn, among others, need not (Legendre & Legendre 2012, section 7.2 [1]_).
+        Morisita-Horn, among others, need not (Legendre & Legendre 2012, ch. 7 [1]_).
 
         References
         ----------

@@ -109,7 +109,7 @@ def transform_community(table: object, method: str) -> TransformResult:
     method : {'relative', 'hellinger', 'wisconsin', 'log1p', 'presence'}
         ``relative``: x_ij / x_i+. ``hellinger``: sqrt(x_ij / x_i+) (Legendre & Gallagher
         2001 [1]_). ``wisconsin``: x_ij / max_i x_ij, then divided by the site total (Legendre &
-        Legendre 2012, section 7.7 [2]_). ``log1p``: ln(x_ij + 1). ``presence``: 1 if x_ij > 0.
+        Legendre 2012, ch. 7 [2]_). ``log1p``: ln(x_ij + 1). ``presence``: 1 if x_ij > 0.
 
     Returns
     -------

@@ -64,7 +64,7 @@ def test_jaccard_equals_scipy_on_booleans():
 def test_sorensen_equals_scipy_dice_and_binary_bray_curtis():
     # reference library: scipy's dice on booleans is (TF + FT) / (2 TT + TF + FT), the
     # Sørensen dissimilarity; Bray-Curtis on presences is Sørensen (Legendre & Legendre 2012,
-    # section 7.3)
+    # ch. 7)
     t = _table(3)
     sor = dissimilarity(t, "sorensen")
     np.testing.assert_allclose(sor.condensed, pdist(t.to_numpy() > 0, "dice"), rtol=1e-12,
@@ -89,7 +89,7 @@ def test_hellinger_is_euclidean_of_sqrt_relative():
 
 
 def test_chord_formula():
-    # Legendre & Legendre 2012, eq. 7.41 (chord distance, Orlóci 1967):
+    # Legendre & Legendre 2012, ch. 7, chord distance D3 (Orlóci 1967; numbering from memory):
     # D = sqrt(2 (1 - sum y1 y2 / sqrt(sum y1^2 sum y2^2)))
     t = _table(5)
 
@@ -101,7 +101,7 @@ def test_chord_formula():
 
 
 def test_chi_square_formula():
-    # Legendre & Legendre 2012, eq. 7.54 (chi-square distance, D16):
+    # Legendre & Legendre 2012, ch. 7, chi-square distance D16 (numbering from memory):
     # D = sqrt(y_++ sum_j (1 / y_+j) (y1j / y1+ - y2j / y2+)^2)
     t = _table(6)
     t["never"] = 0.0  # a taxon absent everywhere contributes nothing
@@ -118,7 +118,7 @@ def test_chi_square_formula():
 
 
 def test_ruzicka_formula():
-    # Ružička (quantitative Jaccard), Legendre & Legendre 2012, section 7.3:
+    # Ružička (quantitative Jaccard), Legendre & Legendre 2012, ch. 7:
     # D = 1 - sum min(y1, y2) / sum max(y1, y2)
     t = _table(7)
     ref = _per_pair(t.to_numpy(), lambda a, b: 1 - np.minimum(a, b).sum() / np.maximum(a, b).sum())
@@ -126,7 +126,8 @@ def test_ruzicka_formula():
 
 
 def test_kulczynski_formula():
-    # Kulczynski, Legendre & Legendre 2012, eq. 7.25 (S18): S = (W/A + W/B) / 2, D = 1 - S
+    # Kulczynski S18, Legendre & Legendre 2012, ch. 7 (numbering from memory):
+    # S = (W/A + W/B) / 2, D = 1 - S
     t = _table(8)
 
     def kul(a, b):

@@ -114,3 +114,20 @@ def test_float32_storage_size_for_5000_sites():
                        dtype=np.float32, validate=False)
     assert d.condensed.nbytes == n * (n - 1) // 2 * 4
     assert d.condensed.nbytes < 2**30 / 20
+
+
+def test_condensed_position_inverse_matches_numpy():
+    # reference library: numpy.triu_indices gives the (i, j) of every condensed position
+    from gradients.distance._tables import condensed_positions_for, pair_of_position
+
+    for n in (2, 3, 7, 5000):
+        i, j = np.triu_indices(n, k=1)
+        pos = np.unique(np.r_[0, i.size - 1, np.random.default_rng(n).integers(0, i.size, 999)])
+        pi, pj = pair_of_position(pos, n)
+        np.testing.assert_array_equal(pi, i[pos])
+        np.testing.assert_array_equal(pj, j[pos])
+    n = 9
+    i, j = np.triu_indices(n, k=1)
+    for site in range(n):
+        np.testing.assert_array_equal(np.sort(condensed_positions_for(site, n)),
+                                      np.flatnonzero((i == site) | (j == site)))

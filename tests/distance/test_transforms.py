@@ -46,7 +46,7 @@ def test_community_transforms_by_definition():
 
 
 def test_wisconsin_by_definition():
-    # Legendre & Legendre 2012, section 7.7: divide each species by its maximum, then each
+    # Legendre & Legendre 2012, ch. 7: divide each species by its maximum, then each
     # site by its total; written out cell by cell
     t = _community()
     x = t.to_numpy()
