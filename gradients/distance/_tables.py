@@ -59,7 +59,9 @@ def cells_text(mask: np.ndarray, frame: pd.DataFrame, limit: int = 5) -> str:
     return "; ".join(shown) + extra
 
 
-def numeric_array(frame: pd.DataFrame, *, name: str, allow_missing: bool = False) -> np.ndarray:
+def numeric_array(
+    frame: pd.DataFrame, *, name: str, allow_missing: bool = False, hint: str = ""
+) -> np.ndarray:
     """The table as a C-contiguous float64 array; names non-numeric columns and bad cells."""
     bad_cols = [
         c for c in frame.columns
@@ -68,7 +70,7 @@ def numeric_array(frame: pd.DataFrame, *, name: str, allow_missing: bool = False
     if bad_cols:
         raise InputError(
             f"The {name} must hold numbers only; column(s) {format_items(bad_cols)} hold text "
-            "or other values. Convert them, or leave them out.",
+            f"or other values. Convert them, or leave them out.{hint}",
             columns=bad_cols,
         )
     try:

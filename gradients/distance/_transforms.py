@@ -334,7 +334,11 @@ def transform_environment(
     sentences: list[str] = []
     for cols, how in plan:
         sub = frame.loc[:, list(cols)]
-        x = numeric_array(sub, name="environmental table", allow_missing=how in _ELEMENTWISE)
+        x = numeric_array(
+            sub, name="environmental table", allow_missing=how in _ELEMENTWISE,
+            hint=" To transform only some columns, give `method` as a mapping, e.g. "
+                 "{'ph': 'zscore', 'copper': 'log10'}; other columns pass through unchanged.",
+        )
         if how == "zscore":
             (col,) = cols
             v = x[:, 0]

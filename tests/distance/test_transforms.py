@@ -192,3 +192,11 @@ def test_mixed_plan_keeps_order_and_labels():
     assert res.table.index.equals(env.index)
     assert res.method == "mixed"
     assert "Egozcue" in res.description and "log10" in res.description
+
+
+def test_text_column_error_suggests_mapping():
+    env = pd.DataFrame({"ph": [6.0, 7.0, 8.0], "habitat": ["pool", "riffle", "pool"]})
+    with pytest.raises(InputError, match=r"'habitat' hold text.*as a mapping"):
+        transform_environment(env, "zscore")
+    res = transform_environment(env, {"ph": "zscore"})
+    assert list(res.table["habitat"]) == ["pool", "riffle", "pool"]
