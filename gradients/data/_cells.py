@@ -100,12 +100,25 @@ def parse_column(column: pd.Series, *, decimal_comma: bool = False) -> ParsedCol
         values[finite] = numbers[finite]
         kinds[finite] = NUMBER
         kinds[missing] = MISSING
-        text[:] = [str(v) for v in column.astype(object)]
+        text = column.to_numpy(dtype=object)  # turned into str only for messages
         text[missing] = ""
         return ParsedColumn(values, kinds, text)
     else:
         raw = column.astype(object).to_numpy()
 
+    if n and pd.api.types.infer_dtype(raw, skipna=False) == "string":
+        # fast path: a text column of plain numbers is converted in one vectorised call; any
+        # other column (empty cells, censored values, text) goes through the loop below
+        strings = np.asarray(raw, dtype=str)
+        if decimal_comma:
+            strings = np.char.replace(strings, ",", ".")
+        try:
+            numbers = strings.astype(float)
+        except ValueError:
+            numbers = None
+        if numbers is not None and np.isfinite(numbers).all():
+            text[:] = raw
+            return ParsedColumn(numbers, np.full(n, NUMBER, dtype=np.int8), text)
     for i, cell in enumerate(raw):
         if cell is None or (isinstance(cell, float) and np.isnan(cell)) or cell is pd.NA:
             kinds[i] = MISSING

@@ -12,6 +12,7 @@ from __future__ import annotations
 import csv
 import io
 import os
+import re
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -27,6 +28,7 @@ TEXT_EXTENSIONS = {".csv", ".tsv", ".tab", ".txt", ".dat", ".psv"}
 EXCEL_EXTENSIONS = {".xlsx", ".xlsm"}
 GEO_EXTENSIONS = {".gpkg", ".geojson", ".json", ".shp"}
 
+_CONTROL = re.compile(r"[\x00-\x08\x0b\x0e-\x1f]")
 _KIND_WORDS = {
     "zip": "a ZIP archive (an .xlsx workbook is one)",
     "ole": "an old-style Excel .xls workbook (or an encrypted workbook)",
@@ -231,9 +233,9 @@ def _rows_to_frame(
 
 def _read_text(path: Path, name: str, role: str, data: bytes) -> RawTable:
     text, log = _decode(data, name, role)
-    bad = next((i for i, ch in enumerate(text) if ord(ch) < 32 and ch not in "\t\n\r\x0c"), None)
+    bad = _CONTROL.search(text)
     if bad is not None:
-        line = text[:bad].count("\n") + 1
+        line = text[: bad.start()].count("\n") + 1
         raise InputError(
             f"The {role} file {name!r} holds control characters (line {line}); it does not look "
             "like a text table. Export the table again as CSV (UTF-8).",
