@@ -333,7 +333,7 @@ def ordination_biplot(
         Group of each site, indexed by site label; every site in `scores` must be present
         (extra sites are ignored). Sites are coloured *and* shaped by group; missing values
         form a grey "no group" class. Groups are listed in order of first appearance, or in
-        category order for a categorical Series.
+        category order for a categorical Series, or in increasing order when all are numbers.
     taxa : DataFrame, optional
         Taxon scores, one row per taxon (index = taxon names) with columns ``axis1``,
         ``axis2``, drawn as small grey crosses.
@@ -479,6 +479,8 @@ def ordination_biplot(
             levels = [c for c in grp.cat.categories if bool((present == c).any())]
         else:
             levels = list(dict.fromkeys(present.tolist()))
+            if all(isinstance(v, int | float | np.number) for v in levels):
+                levels = sorted(levels)
         for i, level in enumerate(levels):
             mask = (grp == level).fillna(False).to_numpy(dtype=bool) & ~missing
             colour, marker = group_style(i)
@@ -1807,6 +1809,19 @@ def partition_plot(
 # saving
 
 
+def _figure_title(fig: Figure) -> str:
+    """The figure's title for the file metadata: the suptitle, else the first axes title."""
+    sup = getattr(fig, "_suptitle", None)
+    if sup is not None and sup.get_text():
+        return str(sup.get_text())
+    for ax in fig.axes:
+        for loc in ("left", "center"):
+            text = ax.get_title(loc=loc)
+            if text:
+                return str(text)
+    return ""
+
+
 def save_figure(
     fig: Figure,
     path_stem: str | Path,
@@ -1837,7 +1852,8 @@ def save_figure(
     -----
     The same figure gives the same bytes on every run: the SVG is written with a fixed
     ``svg.hashsalt`` (stable clip-path identifiers), glyphs as paths from the font shipped with
-    matplotlib, and metadata without a date; the PNG carries no software or date text. Byte
+    matplotlib, and metadata without a date; the PNG carries no software or date text. Both
+    files carry the figure's title (suptitle, else the first axes title) as their ``Title``. Byte
     equality across different matplotlib versions is not promised.
 
     Examples
@@ -1867,18 +1883,20 @@ def save_figure(
         raise InputError(
             f"The folder {str(stem.parent)!r} for `path_stem` does not exist; create it first."
         )
+    title = _figure_title(fig)
     written: list[Path] = []
     with house_style():
         for fmt in fmts:
             path = stem.parent / f"{stem.name}.{fmt}"
             if fmt == "png":
-                fig.savefig(path, format="png", dpi=int(dpi), metadata={"Software": None})
+                meta: dict[str, str | None] = {"Software": None}
+                if title:
+                    meta["Title"] = title
+                fig.savefig(path, format="png", dpi=int(dpi), metadata=meta)
             else:
-                fig.savefig(
-                    path,
-                    format="svg",
-                    dpi=int(dpi),
-                    metadata={"Date": None, "Creator": "gradients"},
-                )
+                meta = {"Date": None, "Creator": "gradients"}
+                if title:
+                    meta["Title"] = title
+                fig.savefig(path, format="svg", dpi=int(dpi), metadata=meta)
             written.append(path)
     return written

@@ -143,6 +143,10 @@ def test_biplot_groups_colour_and_shape(scores):
     fig = F.ordination_biplot(scores, groups=pd.Series(ordered, index=scores.index))
     legend_text = [t.get_text() for t in fig.legends[0].get_texts()]
     assert legend_text == ["lower", "middle", "upper", "no group"]
+    # numeric groups in increasing order
+    numbers = pd.Series([3, 1, 2] * 7 + [1, 2], index=scores.index)
+    fig = F.ordination_biplot(scores, groups=numbers)
+    assert [t.get_text() for t in fig.legends[0].get_texts()] == ["1", "2", "3"]
 
 
 def test_biplot_bad_inputs(scores, arrows):
@@ -514,6 +518,7 @@ def test_save_figure_writes_both_files_identically(tmp_path):
     assert _digest(first) == _digest(second)  # PNG and SVG byte-identical across runs
     svg = first[1].read_text(encoding="utf-8")
     assert "<dc:date>" not in svg
+    assert "<dc:title>Ordination of sites</dc:title>" in svg  # the figure's title as metadata
     assert svg.lstrip().startswith("<?xml")
     png = first[0].read_bytes()
     assert png[:8] == b"\x89PNG\r\n\x1a\n"
