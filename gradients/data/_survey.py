@@ -542,12 +542,14 @@ def _check_geographic(table: _Table, x: np.ndarray, y: np.ndarray, xname: str, y
         )
 
 
-def _parse_locations(table: _Table, opts: _Options) -> tuple[Any, list[Decision]]:
+def _parse_locations(table: _Table, opts: _Options
+                     ) -> tuple[Any, list[Decision], tuple[str, str] | None]:
     import geopandas as gpd
 
     raw = table.raw
     log: list[Decision] = []
     sites = table.data.index
+    used: tuple[str, str] | None = None
     if raw.geo is not None:
         geo = raw.geo
         order = [table.positions[s] for s in sites]
@@ -593,6 +595,7 @@ def _parse_locations(table: _Table, opts: _Options) -> tuple[Any, list[Decision]
         points = gpd.GeoSeries(list(geometry), index=sites, crs=crs)
     else:
         xname, yname, named = _coordinate_columns(table, opts)
+        used = (xname, yname)
         numbers = []
         for col in (xname, yname):
             pc = parse_column(table.data[col], decimal_comma=raw.decimal_comma)
@@ -628,7 +631,7 @@ def _parse_locations(table: _Table, opts: _Options) -> tuple[Any, list[Decision]
         _check_geographic(table, x, y, xname, yname, named)
     gdf = gpd.GeoDataFrame(geometry=points, crs=points.crs)
     gdf.index.name = "site"
-    return gdf, log
+    return gdf, log, used
 
 
 # ---------------------------------------------------------------------------------------------
@@ -873,20 +876,29 @@ class _Parts:
     sources: dict[str, str | None]
 
 
-def _build(raws: dict[str, RawTable], opts: _Options) -> _Parts:
+def _build(raws: dict[str, RawTable], opts: _Options, *, shared_table: bool = False) -> _Parts:
     tables = _site_tables(raws, opts)
     log: list[Decision] = [d for raw in raws.values() for d in raw.log]
     community = _parse_community(tables["community"])
+    locations = None
+    if "locations" in tables:
+        locations, loc_log, used = _parse_locations(tables["locations"], opts)
+        log.extend(loc_log)
+        if shared_table and used and "environment" in tables:
+            env_table = tables["environment"]
+            env_table.data = env_table.data.drop(columns=list(used))
+            log.append(Decision(
+                "coordinates",
+                f"The columns {used[0]!r} and {used[1]!r} of {env_table.raw.source} were used as "
+                "site locations, not as environmental variables.",
+                2, columns=used,
+            ))
     if "environment" in tables:
         env, cens, env_log = _parse_environment(tables["environment"], opts)
         log.extend(env_log)
     else:
         env = pd.DataFrame(index=community.index.copy())
         cens = pd.DataFrame(index=community.index.copy())
-    locations = None
-    if "locations" in tables:
-        locations, loc_log = _parse_locations(tables["locations"], opts)
-        log.extend(loc_log)
 
     index = _align(tables, opts, log)
     community = community.loc[index]
@@ -1034,6 +1046,20 @@ def _raw(obj: object, role: str, *, sheet: Any = None, layer: Any = None,
     )
 
 
+def _same_table(environment: object, locations: object) -> bool:
+    """True when the environment and the locations are the same table (or the same file)."""
+    if environment is None or locations is None:
+        return False
+    if environment is locations:
+        return True
+    if isinstance(environment, str | os.PathLike) and isinstance(locations, str | os.PathLike):
+        try:
+            return os.path.samefile(environment, locations)
+        except OSError:
+            return False
+    return False
+
+
 # ---------------------------------------------------------------------------------------------
 # the public class
 
@@ -1160,7 +1186,7 @@ limit (substitution, common practice; biased, Helsel 2012).
             raws["environment"] = _raw(environment, "environment", allow_paths=False)
         if locations is not None:
             raws["locations"] = _raw(locations, "locations", allow_paths=False)
-        self._set(_build(raws, opts))
+        self._set(_build(raws, opts, shared_table=_same_table(environment, locations)))
 
     def _set(self, parts: _Parts) -> None:
         object.__setattr__(self, "_community", parts.community)
@@ -1435,4 +1461,10 @@ constant
     if locations is not None:
         raws["locations"] = _raw(locations, "locations", sheet=sheet, layer=layer,
                                  allow_paths=True)
-    return Survey._from_parts(_build(raws, opts))
+    def pick(option: object, role: str) -> object:
+        return option.get(role) if isinstance(option, Mapping) else option
+
+    shared = (_same_table(environment, locations)
+              and pick(sheet, "environment") == pick(sheet, "locations")
+              and pick(layer, "environment") == pick(layer, "locations"))
+    return Survey._from_parts(_build(raws, opts, shared_table=shared))

@@ -14,7 +14,7 @@ from hypothesis import strategies as st
 from gradients import InputError
 from gradients.data import Survey, read_survey
 
-SETTINGS = settings(max_examples=60, deadline=None,
+SETTINGS = settings(max_examples=40, deadline=None,
                     suppress_health_check=[HealthCheck.too_slow])
 
 junk = st.sampled_from(["", " ", "NA", "nan", "<0.5", "< 2", "<", "<-1", "nd", "1,5", "-0",
@@ -153,7 +153,7 @@ def test_random_text_files(community, environment, censored):
     _read(files, censored=censored, missing="drop-sites")
 
 
-@settings(max_examples=40, deadline=None)
+@settings(max_examples=30, deadline=None)
 @given(st.binary(max_size=300), st.sampled_from(["csv", "xlsx", "gpkg", "geojson", "txt"]),
        st.sampled_from([b"", b"PK\x03\x04", b"SQLite format 3\x00", b"\xff\xfe", b"{"]))
 def test_random_bytes(data, ext, prefix):

@@ -287,3 +287,16 @@ def test_no_delimiter(tmp_path):
 def test_path_objects_and_strings_agree(tmp_path, community):
     community.to_csv(tmp_path / "c.csv", index=False)
     assert read_survey(str(tmp_path / "c.csv")).equals(read_survey(Path(tmp_path / "c.csv")))
+
+
+def test_environment_and_locations_in_one_table(tmp_path, community, environment, lonlat):
+    both = environment.merge(lonlat, on="site")
+    both.to_csv(tmp_path / "sites.csv", index=False)
+    for s in (read_survey(community, tmp_path / "sites.csv", tmp_path / "sites.csv"),
+              Survey(community, both, both)):
+        assert list(s.environment.columns) == ["Cu", "pH", "habitat"]
+        assert s.locations.crs.to_epsg() == 4326
+        assert any(d.action == "coordinates" for d in s.log)
+    # different frames: the coordinate columns stay environmental variables
+    s = Survey(community, both, lonlat)
+    assert "longitude" in s.environment.columns
