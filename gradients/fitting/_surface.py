@@ -22,8 +22,8 @@ from ._tprs import (
     NULL_DIM,
     ThinPlateBasis,
     criterion_grid,
+    demmler_reinsch_svd,
     deviance,
-    demmler_reinsch,
     lambda_grid,
     null_deviance,
     pirls,
@@ -394,7 +394,7 @@ def fit_surface(
     if basis.rank < min(k, n):
         notes.append(f"Only {basis.rank} distinct site positions: the basis has rank "
                      f"{basis.rank}.")
-    coef_map, lam, valid = demmler_reinsch((x.T @ x)[None], basis.penalty)
+    _, lam, _ = demmler_reinsch_svd(x, basis.penalty)
     grid = lambda_grid(lam[0], _GRID_LAMBDAS)
 
     fit = pirls(x, basis.penalty, y, family, method=criterion, grid=grid,
@@ -462,7 +462,7 @@ def _approx_pvalue(family: str, x: np.ndarray, penalty: np.ndarray, y: np.ndarra
         w = mu
     else:
         w = mu * (1.0 - mu)
-    coef_map, lam, valid = demmler_reinsch((x.T @ (w[:, None] * x))[None], penalty)
+    _, lam, valid = demmler_reinsch_svd(np.sqrt(w)[:, None] * x, penalty)
     s = np.where(valid[0], 1.0 / (1.0 + fit.smoothing[0] * lam[0]), 0.0)
     edf = float(s.sum()) - 1.0
     dev = float(fit.deviance[0])
@@ -481,7 +481,7 @@ def _permutation_statistic(x, penalty, y, family, criterion, grid, smoothing, d0
     """Batched deviance explained with lambda re-selected for every permuted data set."""
     n = len(y)
     if family == "gaussian":
-        coef_map, lam, valid = demmler_reinsch((x.T @ x)[None], penalty)
+        coef_map, lam, valid = demmler_reinsch_svd(x, penalty)
         rows = np.ascontiguousarray((x @ coef_map[0]).T)  # B', orthonormal rows (p, n)
         yy = float(y @ y)
         lam_grid = grid if smoothing is None else np.array([float(smoothing)])

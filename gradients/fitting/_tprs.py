@@ -33,6 +33,7 @@ __all__ = [
     "ThinPlateBasis",
     "criterion_grid",
     "demmler_reinsch",
+    "demmler_reinsch_svd",
     "lambda_grid",
     "null_deviance",
     "pirls",
@@ -171,6 +172,25 @@ def demmler_reinsch(gram: np.ndarray, penalty: np.ndarray,
     scale = np.maximum(lam.max(axis=-1, keepdims=True), 1e-300)
     lam = np.where(lam < 1e-12 * scale, 0.0, lam)
     return coef_map, lam, valid
+
+
+def demmler_reinsch_svd(xw: np.ndarray, penalty: np.ndarray,
+                        rtol: float = 1e-12) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Demmler-Reinsch coordinates of one weighted design ``sqrt(W) X`` via its SVD.
+
+    Same output as :func:`demmler_reinsch` for a stack of one, without forming ``X'WX`` (whose
+    condition number is the square of the design's), so single fits keep full precision.
+    """
+    _, sv, vt = np.linalg.svd(xw, full_matrices=False)
+    good = sv > rtol * sv[0]
+    p_mat = vt.T * np.where(good, 1.0 / np.where(good, sv, 1.0), 0.0)[None, :]
+    m = p_mat.T @ penalty @ p_mat
+    lam, v = np.linalg.eigh(0.5 * (m + m.T))
+    coef_map = p_mat @ v
+    valid = np.linalg.norm(coef_map, axis=0) > 0
+    lam = np.where(valid, np.maximum(lam, 0.0), 0.0)
+    lam = np.where(lam < 1e-12 * max(lam.max(), 1e-300), 0.0, lam)
+    return coef_map[None], lam[None], valid[None]
 
 
 def lambda_grid(lam: np.ndarray, size: int = 120) -> np.ndarray:
@@ -315,8 +335,11 @@ def pirls(
         else:
             w = mua * (1.0 - mua)
             z = etaa + (ya - mua) / w
-        gram = np.swapaxes(x[None, :, :] * w[:, :, None], 1, 2) @ x  # (a, p, p)
-        coef_map, lam, valid = demmler_reinsch(gram, penalty)
+        if len(idx) == 1:
+            coef_map, lam, valid = demmler_reinsch_svd(np.sqrt(w[0])[:, None] * x, penalty)
+        else:
+            gram = np.swapaxes(x[None, :, :] * w[:, :, None], 1, 2) @ x  # (a, p, p)
+            coef_map, lam, valid = demmler_reinsch(gram, penalty)
         xtwz = (w * z) @ x
         b = np.einsum("kpq,kp->kq", coef_map, xtwz)
         zz = (w * z * z).sum(axis=1)

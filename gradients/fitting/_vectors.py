@@ -121,7 +121,8 @@ def _numeric_environment(env: pd.DataFrame) -> pd.DataFrame:
     inf = ~np.isfinite(values.to_numpy()) & ~values.isna().to_numpy()
     if inf.any():
         cols = values.columns[inf.any(axis=0)]
-        raise InputError(f"Column(s) {format_items(cols)} hold infinite values.", columns=list(cols))
+        raise InputError(f"Column(s) {format_items(cols)} hold infinite values.",
+                         columns=list(cols))
     return values
 
 

@@ -1,0 +1,232 @@
+"""Surface fitting checked against direct penalised least squares, the thin plate spline
+equations of Green & Silverman (1994), statsmodels GLM, and null calibration."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import pytest
+import statsmodels.api as sm
+from scipy import stats
+from scipy.spatial import Delaunay
+from scipy.spatial.distance import cdist
+
+from gradients import InputError
+from gradients.fitting import fit_surface
+from gradients.permutation import permutation_plan
+
+
+def _cloud(n=60, seed=0):
+    rng = np.random.default_rng(seed)
+    labels = [f"p{i}" for i in range(n)]
+    return pd.DataFrame(rng.uniform(-2, 2, size=(n, 2)), index=labels,
+                        columns=["axis1", "axis2"]), rng
+
+
+def _scaled(sc):
+    # The documented rule: centre, divide by the root mean squared distance from the centroid.
+    x = sc.to_numpy()
+    c = x - x.mean(0)
+    return c / np.sqrt((c**2).sum(1).mean())
+
+
+def test_fixed_smoothing_equals_direct_penalised_least_squares():
+    # Solve (X'X + lambda S) beta = X'y directly for the same basis; compare fitted values,
+    # and the edf with the trace of the hat matrix X (X'X + lambda S)^-1 X' minus 1.
+    sc, rng = _cloud()
+    y = pd.Series(np.sin(sc.axis1) + sc.axis2 + rng.normal(0, 0.3, 60), index=sc.index, name="y")
+    lam = 0.05
+    fit = fit_surface(sc, y, smoothing=lam, n_resamples=0)
+    x, s = fit._basis.model_matrix, fit._basis.penalty
+    a = x.T @ x + lam * s
+    beta = np.linalg.solve(a, x.T @ y.to_numpy())
+    np.testing.assert_allclose(fit.fitted.to_numpy(), x @ beta, atol=1e-8)
+    hat = x @ np.linalg.solve(a, x.T)
+    assert fit.edf == pytest.approx(np.trace(hat) - 1, abs=1e-8)
+    rss = ((y.to_numpy() - x @ beta) ** 2).sum()
+    tss = ((y - y.mean()) ** 2).sum()
+    assert fit.deviance_explained == pytest.approx(1 - rss / tss, abs=1e-10)
+    np.testing.assert_allclose(fit.predict(sc), fit.fitted, atol=1e-8)
+
+
+def test_full_basis_equals_green_silverman_thin_plate_spline():
+    # Green & Silverman (1994, ch. 7): the thin plate spline minimising
+    # sum (y - g)^2 + lambda J(g) has g = E delta + T a with (E + lambda I) delta + T a = y,
+    # T' delta = 0, E_ij = eta(|u_i - u_j|), eta(r) = r^2 log r / (8 pi) (m = 2, d = 2).
+    sc, rng = _cloud(n=25, seed=2)
+    y = sc.axis1**2 - sc.axis2 + rng.normal(0, 0.2, 25)
+    lam = 0.02
+    fit = fit_surface(sc, y.rename("y"), smoothing=lam, basis_size=40, n_resamples=0)
+    assert fit.basis_size == 25
+    u = _scaled(sc)
+    r = cdist(u, u)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        e = np.where(r > 0, r**2 * np.log(r) / (8 * np.pi), 0.0)
+    t = np.column_stack([np.ones(25), u])
+    system = np.block([[e + lam * np.eye(25), t], [t.T, np.zeros((3, 3))]])
+    sol = np.linalg.solve(system, np.r_[y.to_numpy(), np.zeros(3)])
+    g = e @ sol[:25] + t @ sol[25:]
+    np.testing.assert_allclose(fit.fitted.to_numpy(), g, atol=1e-7)
+    # prediction off the sites follows the same spline: g(x) = sum delta_i eta(|x - x_i|) + T a
+    new = np.array([[0.3, -0.4], [1.1, 1.2]])
+    unew = (new - sc.to_numpy().mean(0)) / np.sqrt(((sc.to_numpy() - sc.to_numpy().mean(0)) ** 2)
+                                                   .sum(1).mean())
+    rn = cdist(unew, u)
+    en = np.where(rn > 0, rn**2 * np.log(np.where(rn > 0, rn, 1)) / (8 * np.pi), 0.0)
+    gnew = en @ sol[:25] + np.column_stack([np.ones(2), unew]) @ sol[25:]
+    np.testing.assert_allclose(fit.predict(new), gnew, atol=1e-7)
+
+
+def test_gcv_choice_minimises_directly_computed_gcv():
+    # Craven & Wahba (1979): GCV(lambda) = n RSS / (n - tr A)^2, computed here by direct solves.
+    sc, rng = _cloud(n=70, seed=4)
+    y = pd.Series(np.cos(sc.axis1 * 1.5) + rng.normal(0, 0.3, 70), index=sc.index, name="y")
+    fit = fit_surface(sc, y, n_resamples=0)
+    x, s = fit._basis.model_matrix, fit._basis.penalty
+
+    def gcv(lam):
+        a = x.T @ x + lam * s
+        hat = x @ np.linalg.solve(a, x.T)
+        rss = ((y.to_numpy() - hat @ y.to_numpy()) ** 2).sum()
+        return 70 * rss / (70 - np.trace(hat)) ** 2
+
+    best = gcv(fit.smoothing)
+    for factor in (0.5, 0.8, 1.25, 2.0):
+        assert best <= gcv(fit.smoothing * factor) + 1e-12
+
+
+def test_quadratic_surface_is_curved_and_plane_is_a_vector():
+    sc, rng = _cloud(n=80, seed=5)
+    quad = pd.Series(sc.axis1**2 + sc.axis2**2 + rng.normal(0, 0.3, 80), index=sc.index,
+                     name="depth")
+    fit = fit_surface(sc, quad, n_resamples=199, rng=1)
+    assert fit.deviance_explained > 0.8 and fit.edf > 2.5
+    assert fit.verdict.startswith("curved response")
+    assert fit.pvalue == pytest.approx(1 / 200)
+    plane = pd.Series(0.8 * sc.axis1 - 0.5 * sc.axis2 + rng.normal(0, 0.5, 80), index=sc.index,
+                      name="slope")
+    fitp = fit_surface(sc, plane, n_resamples=199, rng=1)
+    assert fitp.verdict.startswith("a straight vector would do")
+
+
+def test_noise_pvalues_not_systematically_small():
+    # Null calibration: with pure noise the permutation p-values are (discrete) uniform.
+    # Twenty seeds; the KS test against the uniform law is kept loose (p > 0.01) and at most
+    # 4 of 20 p-values may fall below 0.05 (binomial(20, 0.05): P(X >= 5) ~ 0.003).
+    sc, _ = _cloud(n=40, seed=6)
+    pvals = []
+    for seed in range(20):
+        noise = pd.Series(np.random.default_rng(100 + seed).normal(size=40), index=sc.index,
+                          name="noise")
+        pvals.append(fit_surface(sc, noise, n_resamples=99, rng=seed).pvalue)
+    pvals = np.array(pvals)
+    assert stats.kstest(pvals, "uniform").pvalue > 0.01
+    assert (pvals < 0.05).sum() <= 4
+
+
+def test_batched_permutation_statistic_equals_refits():
+    # Two ways agree: the batched Demmler-Reinsch statistic for a permutation equals a fresh
+    # fit of the permuted data (smoothing re-selected), up to the lambda grid's resolution.
+    sc, rng = _cloud(n=50, seed=7)
+    y = pd.Series(np.sin(2 * sc.axis1) + rng.normal(0, 0.4, 50), index=sc.index, name="y")
+    fit = fit_surface(sc, y, n_resamples=30, rng=3)
+    orders = permutation_plan(50, n_resamples=30, rng=3).batch(0)
+    for b in (0, 11, 29):
+        refit = fit_surface(sc, pd.Series(y.to_numpy()[orders[b]], index=sc.index, name="y"),
+                            n_resamples=0)
+        assert fit.null_distribution[b] == pytest.approx(refit.deviance_explained, abs=2e-3)
+    assert fit.statistic == pytest.approx(fit.deviance_explained, abs=2e-3)
+
+
+def test_poisson_unpenalised_limit_matches_statsmodels_glm():
+    # Reference library: with smoothing = 0 the penalised IRLS is the Poisson GLM on the same
+    # model matrix; statsmodels GLM gives the deviance (and so the deviance explained).
+    sc, rng = _cloud(n=60, seed=8)
+    counts = pd.Series(rng.poisson(np.exp(0.5 + 0.6 * sc.axis1 - 0.3 * sc.axis2**2)),
+                       index=sc.index, name="count")
+    fit = fit_surface(sc, counts, family="poisson", smoothing=0.0, basis_size=6, n_resamples=0)
+    glm = sm.GLM(counts.to_numpy(), fit._basis.model_matrix, family=sm.families.Poisson()).fit()
+    assert fit.deviance_explained == pytest.approx(1 - glm.deviance / glm.null_deviance,
+                                                   abs=1e-8)
+    np.testing.assert_allclose(fit.fitted.to_numpy(), glm.fittedvalues, rtol=1e-6)
+
+
+def test_binomial_unpenalised_limit_matches_statsmodels_glm_and_smooth_fit_works():
+    sc, rng = _cloud(n=80, seed=9)
+    prob = 1 / (1 + np.exp(-(1.5 * sc.axis1 - sc.axis2**2 + 1)))
+    pres = pd.Series((rng.random(80) < prob).astype(int), index=sc.index, name="present")
+    fit = fit_surface(sc, pres, family="binomial", smoothing=0.0, basis_size=6, n_resamples=0)
+    glm = sm.GLM(pres.to_numpy(), fit._basis.model_matrix, family=sm.families.Binomial()).fit()
+    assert fit.deviance_explained == pytest.approx(1 - glm.deviance / glm.null_deviance,
+                                                   abs=1e-7)
+    smooth = fit_surface(sc, pres, family="binomial", n_resamples=49, rng=0)
+    assert smooth.method == "ubre" and 0 < smooth.deviance_explained < 1
+    assert smooth.pvalue <= 0.05
+    assert ((smooth.fitted > 0) & (smooth.fitted < 1)).all()
+
+
+def test_strata_restrict_surface_permutations():
+    # The response differs only between strata, which also separate the sites along axis1;
+    # within-strata permutation cannot move that difference, so the p-value is large.
+    rng = np.random.default_rng(12)
+    zone = np.repeat([0, 1, 2, 3], 12)
+    labels = [f"q{i}" for i in range(48)]
+    sc = pd.DataFrame({"axis1": zone + rng.uniform(-0.3, 0.3, 48),
+                       "axis2": rng.uniform(-1, 1, 48)}, index=labels)
+    y = pd.Series(zone**2 + rng.normal(0, 0.05, 48), index=labels, name="y")
+    free = fit_surface(sc, y, n_resamples=199, rng=2)
+    within = fit_surface(sc, y, n_resamples=199, rng=2, strata=pd.Series(zone, index=labels))
+    assert free.pvalue <= 0.01
+    assert within.pvalue > 0.05 and within.scheme == "strata"
+
+
+def test_grid_is_clipped_to_convex_hull_and_contours_stay_inside():
+    sc, rng = _cloud(n=40, seed=10)
+    y = pd.Series(sc.axis1 * sc.axis2 + rng.normal(0, 0.2, 40), index=sc.index, name="y")
+    fit = fit_surface(sc, y, n_resamples=0, grid_size=30)
+    g = fit.grid
+    assert len(g) == 900
+    # independent check of the hull: scipy Delaunay triangulation of the sites
+    tri = Delaunay(sc.to_numpy())
+    inside = tri.find_simplex(g[["x", "y"]].to_numpy(), tol=1e-9) >= 0
+    np.testing.assert_array_equal(g["inside"].to_numpy(), inside)
+    assert g.loc[~g.inside, "fitted"].isna().all() and g.loc[g.inside, "fitted"].notna().all()
+    np.testing.assert_allclose(g.loc[g.inside, "fitted"],
+                               fit.predict(g.loc[g.inside, ["x", "y"]].to_numpy()), atol=1e-10)
+    lines = fit.contours(levels=[0.0])
+    assert len(lines) > 0
+    assert (tri.find_simplex(lines[["x", "y"]].to_numpy(), tol=1e-6) >= 0).all()
+
+
+def test_approximate_pvalue_is_an_f_test_on_the_linear_limit():
+    # Theory: as lambda -> infinity the surface is the plane and the approximate F test is the
+    # OLS F test of the two slopes (statsmodels f_pvalue), df (2, n - 3).
+    sc, rng = _cloud(n=30, seed=11)
+    y = pd.Series(0.3 * sc.axis1 + rng.normal(size=30), index=sc.index, name="y")
+    fit = fit_surface(sc, y, smoothing=1e9, n_resamples=0)
+    ols = sm.OLS(y.to_numpy(), sm.add_constant(sc.to_numpy())).fit()
+    assert fit.edf == pytest.approx(2.0, abs=1e-4)
+    assert fit.pvalue_approx == pytest.approx(ols.f_pvalue, rel=1e-3)
+
+
+def test_input_errors():
+    sc, rng = _cloud(n=30)
+    y = pd.Series(rng.normal(size=30), index=sc.index, name="y")
+    with pytest.raises(InputError, match="presences coded 0/1"):
+        fit_surface(sc, y, family="binomial", n_resamples=0)
+    with pytest.raises(InputError, match="counts >= 0"):
+        fit_surface(sc, y, family="poisson", n_resamples=0)
+    with pytest.raises(InputError, match="known scale"):
+        fit_surface(sc, y, method="ubre", n_resamples=0)
+    with pytest.raises(InputError, match="exactly two"):
+        fit_surface(sc, y, axes=("axis1",), n_resamples=0)
+    with pytest.raises(InputError, match="straight line"):
+        line = sc.assign(axis2=2 * sc.axis1)
+        fit_surface(line, y, n_resamples=0)
+    with pytest.raises(InputError, match="one variable"):
+        fit_surface(sc, pd.DataFrame({"a": y, "b": y}), n_resamples=0)
+    gap = y.copy()
+    gap.iloc[3] = np.nan
+    with pytest.raises(InputError, match="missing"):
+        fit_surface(sc, gap, n_resamples=0)
+    assert fit_surface(sc, gap, n_resamples=0, missing="complete").n == 29
