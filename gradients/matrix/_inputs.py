@@ -106,7 +106,7 @@ def control_matrices(z: object) -> dict[str, object]:
             raise InputError("`z` is empty: give at least one control matrix.")
         return {str(k): v for k, v in z.items()}
     if isinstance(z, DistanceMatrix | pd.DataFrame) or (
-        isinstance(z, np.ndarray) and z.ndim == 2
+        isinstance(z, np.ndarray) and z.ndim in (1, 2)
     ):
         return {"z": z}
     if isinstance(z, Sequence) and not isinstance(z, str):

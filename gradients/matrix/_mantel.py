@@ -309,9 +309,9 @@ def _spatial_null(
     notes = [
         f"pvalue_spatial: {n_surrogates} surrogates of x by Moran spectral randomisation "
         "(Wagner & Dray 2015; for Mantel tests Crabot et al. 2019): random signs on x's "
-        f"projections on {msr.n_mem} Moran eigenvector maps of inverse-distance weights within "
-        "the minimum-spanning-tree distance, which keeps the Moran's I of every principal "
-        "coordinate of x."
+        f"projections on {msr.n_mem} Moran eigenvector maps (Gaussian weights of scale twice "
+        "the longest minimum-spanning-tree edge), which keeps the Moran's I of every "
+        "principal coordinate of x."
     ]
     if share > 1e-8:
         notes.append(
@@ -403,8 +403,8 @@ def mantel(
     level 0.05), says in ``notes`` when both are structured, and adds ``pvalue_spatial``:
     surrogates of ``x`` with the spatial spectrum of ``x`` kept, by Moran spectral
     randomisation [4]_, [5]_. ``x`` is represented by its principal coordinates; the spatial
-    weights are inverse distances among sites closer than the longest edge of the minimum
-    spanning tree; every surrogate flips the signs of the coordinates' projections on the
+    weights are ``exp(-(d / 2t)^2)``, ``t`` the longest edge of the minimum spanning tree of
+    the sites; every surrogate flips the signs of the coordinates' projections on the
     Moran eigenvector maps (the same signs for every coordinate), which keeps each
     coordinate's Moran's I and their covariance exactly. The surrogate distance matrices are
     correlated with the fixed ``y``.

@@ -43,6 +43,15 @@ __all__ = [
 
 
 def location_distances(locations: object, labels: pd.Index) -> np.ndarray:
+    """Condensed distances among the sites from ``spatial_null`` (see :func:`_distances`)."""
+    out = np.asarray(_distances(locations, labels), dtype=np.float64)
+    if not np.any(out > 0):
+        raise InputError("All sites share one location in `spatial_null`: no spatial "
+                         "structure can be defined. Check the coordinates.")
+    return out
+
+
+def _distances(locations: object, labels: pd.Index) -> np.ndarray:
     """Condensed distances among the sites ``labels`` from coordinates or a distance matrix.
 
     Accepts a :class:`DistanceMatrix` or square labelled DataFrame of (geographic or in-stream)
@@ -118,13 +127,17 @@ def _coordinates_frame(frame: pd.DataFrame, labels: pd.Index) -> np.ndarray:
 
 
 def spatial_weights(distances: np.ndarray) -> np.ndarray:
-    """Inverse-distance weights among neighbours within the minimum-spanning-tree threshold.
+    """Smooth spatial weights: ``w_ij = exp(-(d_ij / (2 t))^2)``, ``t`` the longest MST edge.
 
-    ``w_ij = 1 / d_ij`` when ``d_ij <= t`` and 0 otherwise, ``t`` the longest edge of the
-    minimum spanning tree of the sites, the smallest threshold that leaves no site or group of
-    sites unconnected (the truncation used for distance-based MEMs by Dray, Legendre &
-    Peres-Neto 2006). Co-located sites (``d_ij = 0``) get the weight of half the smallest
-    positive distance.
+    ``t``, the longest edge of the minimum spanning tree of the sites, is the smallest
+    distance that connects every site to the others (the truncation distance of
+    distance-based MEMs, Dray, Legendre & Peres-Neto 2006); the Gaussian kernel of scale
+    ``2 t`` weights neighbours smoothly and never leaves a site unconnected. A smooth kernel
+    was chosen over a truncated inverse distance because its eigenvectors resemble those of a
+    stationary spatial covariance, which is what makes sign randomisation a good null: in
+    our calibration runs (tests/matrix/test_spatial.py) the truncated inverse-distance
+    weights left the type I error at 13-45 % under strong autocorrelation, this kernel
+    at 4.5-7 % (nominal 5 %).
     """
     d = squareform(np.asarray(distances, dtype=np.float64), checks=False)
     n = d.shape[0]
@@ -133,10 +146,9 @@ def spatial_weights(distances: np.ndarray) -> np.ndarray:
         raise InputError("All sites share one location: no spatial structure can be defined.")
     floor = 0.5 * float(positive.min())
     graph = np.where(np.eye(n, dtype=bool), 0.0, np.maximum(d, floor))
-    mst = minimum_spanning_tree(graph).toarray()
-    threshold = float(mst.max())
-    w = np.where((d <= threshold * (1 + 1e-12)) & ~np.eye(n, dtype=bool),
-                 1.0 / np.maximum(d, floor), 0.0)
+    threshold = float(minimum_spanning_tree(graph).toarray().max())
+    w = np.exp(-((d / (2.0 * threshold)) ** 2))
+    np.fill_diagonal(w, 0.0)
     return w
 
 

@@ -1,0 +1,169 @@
+"""Mantel correlogram (class counts, sign convention, Holm correction) and distance decay
+(recovery of a known decay, the site bootstrap)."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from scipy import stats
+from scipy.spatial.distance import pdist, squareform
+from statsmodels.stats.multitest import multipletests
+
+from gradients import InputError
+from gradients.distance import DistanceMatrix
+from gradients.matrix import distance_decay, mantel_correlogram
+from gradients.matrix._correlogram import progressive_holm
+from gradients.permutation import permutation_plan
+
+
+def _field(n, seed):
+    rng = np.random.default_rng(seed)
+    xy = rng.uniform(0, 10, size=(n, 2))
+    com = np.c_[np.sin(xy[:, 0] / 2), np.cos(xy[:, 1] / 2)] + rng.normal(0, 0.1, (n, 2))
+    lab = [f"q{i}" for i in range(n)]
+    return DistanceMatrix(pdist(com), lab), DistanceMatrix(pdist(xy), lab)
+
+
+def test_class_counts_bounds_and_sign_convention():
+    d, geo = _field(30, 1)
+    res = mantel_correlogram(d, geo, n_resamples=99, rng=0, min_pairs=1)
+    m = 435
+    k = int(np.ceil(1 + np.log2(m)))  # Sturges (1926): 1 + log2(number of distances)
+    t = res.table
+    assert len(t) == k
+    # reference counts: numpy.histogram on the same equal-width breaks (last bin closed)
+    counts, edges = np.histogram(geo.condensed, bins=k)
+    np.testing.assert_array_equal(t["n_pairs"], counts)
+    np.testing.assert_allclose(res.breaks, edges)
+    np.testing.assert_allclose(t["midpoint"], (edges[:-1] + edges[1:]) / 2)
+    # Legendre & Legendre (2012, 13.1): r between d and W_k coded 0 within the class, 1
+    # otherwise, so positive autocorrelation gives a positive value (scipy.stats.pearsonr)
+    codes = np.clip(np.digitize(geo.condensed, edges) - 1, 0, k - 1)
+    for c in range(k):
+        w = (codes != c).astype(float)
+        assert t["statistic"].iloc[c] == pytest.approx(
+            stats.pearsonr(d.condensed, w).statistic, abs=1e-12)
+    assert t["statistic"].iloc[0] > 0  # near sites alike in this smooth field
+
+
+def test_progressive_holm_matches_statsmodels_on_each_prefix():
+    # Progressive correction (Legendre & Legendre 2012, 13.1): class k is corrected for the
+    # first k tests; reference statsmodels.stats.multitest.multipletests(method='holm').
+    p = np.array([0.001, 0.04, 0.03, 0.2, 0.01, np.nan, 0.5])
+    got = progressive_holm(p)
+    finite = p[np.isfinite(p)]
+    expected = [multipletests(finite[: j + 1], method="holm")[1][j] for j in range(finite.size)]
+    np.testing.assert_allclose(got[np.isfinite(p)], expected, rtol=1e-14)
+    assert np.isnan(got[5])
+
+
+def test_correlogram_null_is_one_pass_over_the_same_permutations():
+    # Every class from the same orders: brute force with np.ix_ and pearsonr per class.
+    d, geo = _field(12, 2)
+    res = mantel_correlogram(d, geo, classes=[0, 3, 6, 15], n_resamples=20, rng=4,
+                             min_pairs=1)
+    plan = permutation_plan(12, n_resamples=20, rng=np.random.default_rng(4))
+    orders = np.concatenate(list(plan.batches()))
+    iu = np.triu_indices(12, k=1)
+    codes = np.digitize(geo.condensed, [0, 3, 6, 15]) - 1
+    for b, p in enumerate(orders):
+        dp = d.square()[np.ix_(p, p)][iu]
+        for c in range(3):
+            ref = stats.pearsonr(dp, (codes != c).astype(float)).statistic
+            assert res.null_distribution[b, c] == pytest.approx(ref, abs=1e-12)
+    assert np.all(np.isfinite(res.table["pvalue"]))
+
+
+def test_classes_with_few_pairs_are_flagged_not_tested():
+    d, geo = _field(25, 3)
+    res = mantel_correlogram(d, geo, classes=6, n_resamples=99, rng=0, min_pairs=40)
+    t = res.table
+    few = t["n_pairs"] < 40
+    assert few.any() and (~few).any()
+    assert t.loc[few, "pvalue"].isna().all() and not t.loc[few, "tested"].any()
+    assert t.loc[~few, "pvalue"].notna().all()
+    assert any("fewer than 40 pairs" in note for note in res.notes)
+
+
+def test_correlogram_messages():
+    d, geo = _field(10, 1)
+    with pytest.raises(InputError, match="strictly increasing sequence"):
+        mantel_correlogram(d, geo, classes=[0, 2, 1])
+    with pytest.raises(InputError, match="`classes` must be one of 'sturges'"):
+        mantel_correlogram(d, geo, classes="scott")
+    with pytest.raises(InputError, match="`min_pairs` must be a positive integer"):
+        mantel_correlogram(d, geo, min_pairs=0)
+
+
+def _decay_data(n, seed, *, slope=-0.02, model="exponential", sigma=0.05):
+    rng = np.random.default_rng(seed)
+    xy = rng.uniform(0, 100, size=(n, 2))
+    g = pdist(xy)
+    eta = slope * (g if model == "exponential" else np.log(g))
+    s = 0.8 * np.exp(eta + rng.normal(0, sigma, g.size))
+    lab = [f"r{i}" for i in range(n)]
+    return DistanceMatrix(np.clip(1 - s, 0, None), lab), DistanceMatrix(g, lab), g, np.log(s)
+
+
+@pytest.mark.parametrize(("model", "slope"), [("exponential", -0.02), ("power", -0.4)])
+def test_known_decay_is_recovered(model, slope):
+    # Data generated with ln S = ln 0.8 + b g + e (or b ln g), e ~ N(0, 0.05^2) independent
+    # per pair. OLS is unbiased with standard error sigma / sqrt(sum (u - mean u)^2) (theory);
+    # the estimate must be within 4 standard errors of the truth (a false failure has
+    # probability about 6e-5), and the halving quantity follows from the slope (Nekola &
+    # White 1999: ln 2 / -b; for the power law the factor 2^(-1/b)).
+    d, geo, g, _ = _decay_data(40, 1, slope=slope, model=model)
+    res = distance_decay(d, geo, model=model, n_boot=200, rng=0)
+    u = g if model == "exponential" else np.log(g)
+    se = 0.05 / np.sqrt(np.sum((u - u.mean()) ** 2))
+    assert abs(res.slope - slope) < 4 * se
+    assert abs(res.intercept - np.log(0.8)) < 0.05
+    expected_h = np.log(2) / -res.slope if model == "exponential" else 2 ** (-1 / res.slope)
+    assert res.halving == pytest.approx(expected_h, rel=1e-12)
+    lo, hi = res.slope_interval
+    assert lo < res.slope < hi
+    assert res.table.loc["halving", "lower"] <= res.halving <= res.table.loc["halving", "upper"]
+    assert len(res.pairs) == 780 and res.pairs["used"].all()
+    assert len(res.curve) == 100 and (np.diff(res.curve["fitted"]) < 0).all()
+
+
+def test_site_bootstrap_equals_explicit_resampling_of_sites():
+    # The weighted fit with pair weights c_i c_j must equal resampling the sites explicitly,
+    # taking all pairs of drawn sites except a site with its own copy, and refitting with
+    # numpy.polyfit (Nekola & White 1999: resample sites, not pairs).
+    d, geo, g, logs = _decay_data(15, 2)
+    res = distance_decay(d, geo, n_boot=5, rng=123)
+    gen = np.random.default_rng(123)  # same stream: multinomial counts of each site
+    counts = gen.multinomial(15, np.full(15, 1 / 15), size=5)
+    gs, ls = squareform(g), squareform(logs)
+    for b in range(5):
+        sites = np.repeat(np.arange(15), counts[b])
+        i, j = np.triu_indices(sites.size, k=1)
+        keep = sites[i] != sites[j]
+        a, c = sites[i][keep], sites[j][keep]
+        slope, intercept = np.polyfit(gs[a, c], ls[a, c], 1)
+        assert res.bootstrap[b, 0] == pytest.approx(slope, rel=1e-9)
+        assert res.bootstrap[b, 1] == pytest.approx(intercept, rel=1e-9)
+
+
+def test_zero_similarities_dropped_with_a_note_or_kept_with_an_offset():
+    d, geo, _, _ = _decay_data(12, 3)
+    values = d.condensed.copy()
+    values[:5] = 1.0  # five pairs sharing nothing
+    d0 = DistanceMatrix(values, d.labels)
+    dropped = distance_decay(d0, geo, n_boot=50, rng=0)
+    assert dropped.n_dropped == 5 and dropped.n_pairs == 61
+    assert any("5 pair(s) of sites with zero similarity" in note for note in dropped.notes)
+    kept = distance_decay(d0, geo, offset=0.01, n_boot=50, rng=0)
+    assert kept.n_dropped == 0 and kept.n_pairs == 66
+
+
+def test_decay_messages():
+    d, geo, _, _ = _decay_data(10, 1)
+    big = DistanceMatrix(2 * d.condensed + 1, d.labels)
+    with pytest.raises(InputError, match="similarity='1-d' needs dissimilarities of at most 1"):
+        distance_decay(big, geo)
+    with pytest.raises(InputError, match="`model` must be one of 'exponential', 'power'"):
+        distance_decay(d, geo, model="linear")
+    with pytest.raises(InputError, match="`offset` must be a positive number"):
+        distance_decay(d, geo, offset=-1.0)
