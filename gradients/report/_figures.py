@@ -23,8 +23,12 @@ Input contract shared by all functions
 - The plotted artists carry labels starting with ``_gr:`` (hidden from legends), so programs and
   tests can find them: ``_gr:sites``, ``_gr:arrow``, ``_gr:arrow-faded``, ``_gr:centroids``,
   ``_gr:taxa``, ``_gr:surface``, ``_gr:contours``, ``_gr:pairs``, ``_gr:fit``,
-  ``_gr:classes-filled``, ``_gr:classes-hollow``, ``_gr:bars``, ``_gr:dots-filled``,
-  ``_gr:dots-hollow``, ``_gr:halving``, ``_gr:curve``, ``_gr:fractions``.
+  ``_gr:classline``, ``_gr:classes-filled``, ``_gr:classes-hollow``, ``_gr:bars``,
+  ``_gr:dots-filled``, ``_gr:dots-hollow``, ``_gr:interval``, ``_gr:halving``,
+  ``_gr:halving-point``, ``_gr:curve``, ``_gr:fractions`` (bar containers carry the label
+  for ``_gr:bars`` and ``_gr:fractions``).
+- Every function takes keyword-only ``title=`` and ``figsize=`` (inches) besides its own
+  options; axis and note text is set from the options, never from global state.
 
 References
 ----------
