@@ -109,6 +109,10 @@ def _morisita_horn(x: np.ndarray, out: np.ndarray) -> None:
     K.morisita_horn(x, tot, lam, out)
 
 
+def _gower_not_here(x: np.ndarray, out: np.ndarray) -> None:
+    raise RuntimeError("Gower's coefficient is computed by gower_distance(), not from an array.")
+
+
 def _undefined_for_empty(out: np.ndarray, empty: np.ndarray) -> None:
     n = empty.size
     for i in np.flatnonzero(empty):
@@ -132,7 +136,7 @@ METRICS: dict[str, Metric] = {
     "manhattan": Metric(_manhattan, "signed", None, "common practice"),
     "canberra": Metric(_canberra, "signed", None, "Lance & Williams 1966"),
     "morisita-horn": Metric(_morisita_horn, "abundance", 1.0, "Horn 1966", empty_site=True),
-    "gower": Metric(lambda x, out: None, "mixed", 1.0, "Gower 1971"),
+    "gower": Metric(_gower_not_here, "mixed", 1.0, "Gower 1971"),
 }
 
 
@@ -303,6 +307,7 @@ def _resolve_undefined(
     empty: str,
     *,
     empty_rows: np.ndarray | None = None,
+    nothing: str = "no taxa",
 ) -> None:
     undefined = np.isnan(out)
     if not undefined.any():
@@ -316,7 +321,7 @@ def _resolve_undefined(
         pairs = ", ".join(f"({labels[a]!r}, {labels[b]!r})" for a, b in zip(i, j, strict=True))
         more = f" and {pos.size - 5} more" if pos.size > 5 else ""
         empties = labels[empty_rows]
-        why = (f"site(s) with no taxa: {format_items(empties)}" if len(empties)
+        why = (f"site(s) with {nothing}: {format_items(empties)}" if len(empties)
                else "pairs with nothing to compare")
         raise InputError(
             f"{metric} is undefined (0/0) for {pos.size} pair(s) of sites: {pairs}{more}; "
@@ -449,7 +454,7 @@ def gower_distance(
     K.gower(x, kind, ranges, w, out)
     no_data = np.all(np.isnan(x) | (w[None, :] == 0), axis=1)
     _resolve_undefined(out, None, frame.index, "gower", METRICS["gower"], empty,
-                       empty_rows=no_data)
+                       empty_rows=no_data, nothing="no value to compare")
     return DistanceMatrix(out, frame.index, metric=metric_name, dtype=out_dtype)
 
 

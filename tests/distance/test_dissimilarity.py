@@ -309,3 +309,9 @@ def test_extended_threshold():
     assert d == DistanceMatrix(dissimilarity(_chain(), "euclidean").condensed, list("ABCD"))
     with pytest.raises(InputError, match="`saturated=`"):
         dissimilarity(_chain(), "euclidean", extended=True)
+
+
+def test_gower_site_without_values_named():
+    t = pd.DataFrame({"x": [1.0, np.nan, 2.0], "y": [3.0, np.nan, 6.0]}, index=list("pqr"))
+    with pytest.raises(InputError, match=r"site\(s\) with no value to compare: 'q'"):
+        dissimilarity(t, "gower")
