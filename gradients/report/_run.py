@@ -110,7 +110,7 @@ def analyse(survey: Any, *, settings: dict[str, Any] | None = None,
         The planted truth of a simulated survey; adds the section comparing it with what was
         found.
     """
-    from . import _steps  # noqa: F401  (registers the steps)
+    from ._steps import order_sections  # importing registers the steps
 
     full = defaults()
     full.update(settings or {})
@@ -152,7 +152,8 @@ def analyse(survey: Any, *, settings: dict[str, Any] | None = None,
         "timings": {**ctx.timings, "analysis_total": round(time.perf_counter() - start, 3)},
     }
     sites = pd.DataFrame(ctx.site_columns) if ctx.site_columns else None
-    return Outcome(title=title or full["title"], sections=ctx.sections, methods=methods,
+    return Outcome(title=title or full["title"], sections=order_sections(ctx.sections),
+                   methods=methods,
                    run_info=run_info, sites=sites, locations=survey.locations,
                    skipped=ctx.skipped, summary=list(ctx.results.get("summary", [])))
 

@@ -41,6 +41,16 @@ def _add_figure(ctx: Context, section: Section, name: str, caption: str, functio
         section.captions[name] = caption
 
 
+#: Order of the sections in the report (steps run in dependency order, which differs).
+SECTION_ORDER = ("verdicts", "planted_truth", "ordination", "vectors", "surfaces", "factors",
+                 "mantel", "partial_mantel", "regression", "correlogram", "distance_decay")
+
+
+def order_sections(sections: list[Section]) -> list[Section]:
+    rank = {k: i for i, k in enumerate(SECTION_ORDER)}
+    return sorted(sections, key=lambda s: rank.get(s.key, len(rank)))
+
+
 # ------------------------------------------------------------------------------- community
 METRIC_NAMES = {"bray-curtis": "Bray-Curtis", "jaccard": "Jaccard", "sorensen": "Sørensen",
                 "ruzicka": "Růžička", "kulczynski": "Kulczynski", "hellinger": "Hellinger",
@@ -834,3 +844,58 @@ def planted_truth_step(ctx: Context) -> None:
     except ImportError:
         pass
     ctx.sections.insert(1 if _section(ctx, "verdicts") is not None else 0, sec)
+
+
+@step("surfaces", "analyses.surfaces")
+def surfaces_step(ctx: Context) -> None:
+    from ..fitting import fit_surface
+
+    variables = list(ctx.settings["environment.surfaces"])
+    if not variables:
+        return
+    env = ctx.results["environment"]
+    names = ctx.results["analysis_names"]
+    scores = ctx.results["ordination"].scores
+    rows, lines = [], []
+    sec = Section("surfaces", "Smooth surfaces of variables over the ordination")
+    sec.paragraphs.append(
+        "Each variable modelled as a penalised thin plate regression spline of the first two "
+        "axes (Wood 2003), smoothness chosen by generalised cross-validation. edf near 2 means "
+        "a straight arrow describes the variable well; larger values mean a curved response. "
+        "The permutation p-value re-selects the smoothness on every permutation.")
+    fits = {}
+    for v in variables:
+        column = names.get(v, v)
+        if column not in env.columns or not pd.api.types.is_numeric_dtype(env[column]):
+            raise InputError(f"`environment.surfaces` names {v!r}, which is not a numeric "
+                             "variable of the environmental table.", columns=[v])
+        fit = fit_surface(scores, env[column], n_resamples=ctx.n_resamples,
+                          rng=ctx.rng(f"surface:{v}"), strata=_strata(ctx))
+        fits[column] = fit
+        rows.append({"variable": column, "edf": fit.edf,
+                     "deviance_explained": fit.deviance_explained, "smoothing": fit.smoothing,
+                     "pvalue_approx": fit.pvalue_approx, "pvalue": fit.pvalue,
+                     "n_resamples": fit.n_resamples, "basis_size": fit.basis_size,
+                     "verdict": fit.verdict})
+        contours = fit.contours()
+        contours.insert(0, "variable", column)
+        lines.append(contours)
+        ctx.site_columns[f"fitted_{column}"] = fit.fitted
+        sec.notes.extend(n for n in fit.notes if n not in sec.notes)
+        drawn = contours.copy()
+        drawn["path"] = drawn.groupby(["level", "line"], sort=False).ngroup()
+        _add_figure(ctx, sec, f"surface_{v}", f"Fitted surface of {column} over the "
+                    "ordination (contours within the sites' hull), with the sites.",
+                    "surface_contours", scores, fit.grid, variable=column, contours=drawn)
+    ctx.results["surfaces"] = fits
+    table = pd.DataFrame(rows).set_index("variable")
+    sec.tables["surface_summary"] = table
+    sec.tables["surface_contours"] = pd.concat(lines, ignore_index=True)
+    sec.shown.append("surface_summary")
+    ctx.sections.append(sec)
+    ctx.methods.append(
+        "Smooth surfaces (thin plate regression splines, Wood 2003; smoothness by generalised "
+        "cross-validation) of " + "; ".join(
+            f"{r['variable']} (edf {r['edf']:.1f}, deviance explained "
+            f"{100 * r['deviance_explained']:.0f} %, {_fmt_p(r['pvalue'])})" for r in rows)
+        + " were fitted over the first two axes.")
