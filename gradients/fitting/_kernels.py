@@ -28,10 +28,12 @@ def _scatter_rows(orders: np.ndarray, rows: np.ndarray, start: int, out: np.ndar
     r, n = rows.shape
     m = out.shape[0] // r
     for b in range(m):
-        for i in range(n):
-            j = orders[start + b, i]
-            for a in range(r):
-                out[b * r + a, j] = rows[a, i]
+        order = orders[start + b]
+        for a in range(r):
+            target = out[b * r + a]
+            source = rows[a]
+            for i in range(n):
+                target[order[i]] = source[i]
 
 
 def project_batch(orders: np.ndarray, rows: np.ndarray, values: np.ndarray) -> np.ndarray:
