@@ -1,9 +1,10 @@
 """Compiled kernels for NMDS: distances, monotone regression, stress-1 and its gradient.
 
-The dissimilarities are sorted once (:func:`prepare_order`); each evaluation then only re-sorts the
-configuration distances inside blocks of tied dissimilarities (the primary approach to ties), runs
-the pool-adjacent-violators algorithm and accumulates the analytic gradient, all in one pass of
-compiled code that releases the GIL (so starts can run on threads).
+The pairs of sites are put in order of dissimilarity once (:class:`MonotoneOrder`). Each
+evaluation then walks the pairs in that order: it computes their distances in the configuration,
+re-sorts the distances only inside blocks of tied dissimilarities (primary approach to ties),
+runs pool-adjacent-violators, and accumulates the analytic gradient, in one compiled pass that
+reads the long arrays sequentially and releases the GIL (so starts can run on threads).
 """
 
 from __future__ import annotations
@@ -16,44 +17,62 @@ import numpy as np
 __all__ = ["MonotoneOrder", "StressFunction", "prepare_order", "stress_fit"]
 
 _JIT = {"cache": True, "nogil": True, "fastmath": False, "boundscheck": False}
+# tie blocks up to this size are re-sorted by insertion sort (nearly sorted from the previous
+# evaluation), larger ones by merge sort
+_INSERTION_MAX = 64
 
 
 def prepare_order(dissimilarities: np.ndarray, *, rtol: float = 1e-12) -> tuple[np.ndarray,
                                                                                 np.ndarray]:
     """Stable order of the dissimilarities and the boundaries of blocks of tied values.
 
-    Values whose sorted neighbours differ by no more than ``rtol`` times the largest dissimilarity
-    are one tie block. Returns ``order`` (positions sorted by dissimilarity) and ``starts``
-    (start of each tie block of two or more values, followed by its end), as int64 arrays of
-    shape ``(2 * n_blocks,)``.
+    Sorted neighbours that differ by no more than ``rtol`` times the largest dissimilarity are
+    tied. Returns ``order`` (condensed positions sorted by dissimilarity) and ``blocks``
+    (``[start0, end0, start1, end1, ...]``: sorted positions ``start <= k < end`` of each block of
+    two or more tied values), both int64.
     """
     delta = np.asarray(dissimilarities, dtype=np.float64)
     order = np.argsort(delta, kind="stable").astype(np.int64)
     s = delta[order]
     scale = float(s[-1]) if s.size and s[-1] > 0 else 1.0
-    same = np.diff(s) <= rtol * scale
-    # block boundaries where ``same`` switches
-    edges = np.flatnonzero(np.diff(np.concatenate(([False], same, [False])).astype(np.int8)))
-    # edges come in pairs (start of a run of True in ``same``, end); a run from a to b of
-    # ``same`` means values a .. b (inclusive) are tied, i.e. block [a, b + 1)
-    blocks = edges.reshape(-1, 2).copy()
-    blocks[:, 1] += 1
-    return order, blocks.ravel().astype(np.int64)
+    same = np.diff(s) <= rtol * scale  # same[k]: sorted values k and k + 1 are tied
+    padded = np.concatenate(([False], same, [False])).astype(np.int8)
+    edges = np.flatnonzero(np.diff(padded)).reshape(-1, 2)
+    # a run same[a..b] all true is found as edges (a, b + 1); it ties values a .. b + 1
+    edges[:, 1] += 1
+    return order, edges.ravel().astype(np.int64)
 
 
-@numba.njit(**_JIT)
-def _distances(x: np.ndarray, out: np.ndarray) -> None:
-    """Euclidean distances between the rows of ``x``, condensed (squareform order)."""
-    n, n_dim = x.shape
-    k = 0
-    for a in range(n - 1):
-        for b in range(a + 1, n):
-            s = 0.0
-            for c in range(n_dim):
-                t = x[a, c] - x[b, c]
-                s += t * t
-            out[k] = np.sqrt(s)
-            k += 1
+@dataclasses.dataclass(frozen=True)
+class MonotoneOrder:
+    """The pairs of sites in order of dissimilarity, their tie blocks, the approach to ties.
+
+    ``order`` sorts the condensed dissimilarities (stably); ``first`` and ``second`` are the two
+    sites of the pair at each sorted position; ``blocks`` gives start and end of each block of
+    tied values (flattened); ``join[k]`` is true where sorted positions ``k`` and ``k + 1`` must
+    share one fitted value (secondary approach only).
+    """
+
+    order: np.ndarray
+    first: np.ndarray
+    second: np.ndarray
+    blocks: np.ndarray
+    join: np.ndarray
+    primary: bool
+
+    @classmethod
+    def build(cls, dissimilarities: np.ndarray, *, primary: bool = True) -> MonotoneOrder:
+        delta = np.asarray(dissimilarities, dtype=np.float64)
+        m = delta.size
+        n = int(np.rint((1 + np.sqrt(1 + 8 * m)) / 2))
+        order, blocks = prepare_order(delta)
+        ii, jj = np.triu_indices(n, k=1)
+        join = np.zeros(m, dtype=np.bool_)
+        if not primary:
+            for lo, hi in blocks.reshape(-1, 2):
+                join[lo:hi - 1] = True
+        return cls(order, ii[order].astype(np.int64), jj[order].astype(np.int64), blocks, join,
+                   primary)
 
 
 @numba.njit(**_JIT)
@@ -61,13 +80,17 @@ def _pava(y: np.ndarray, join: np.ndarray, out: np.ndarray, total: np.ndarray,
           count: np.ndarray, start: np.ndarray) -> None:
     """Least-squares non-decreasing fit to ``y`` (unit weights), pool-adjacent-violators.
 
-    Where ``join[k]`` is true, ``y[k]`` and ``y[k + 1]`` are pooled before any comparison
-    (they must share one fitted value: the secondary approach to ties). Blocks are kept as
-    (sum, count); a block is pooled with the one before while its mean is lower, compared by
-    cross-multiplication so no division happens until the end.
+    Where ``join[k]`` is true, ``y[k]`` and ``y[k + 1]`` are pooled before any comparison (they
+    must share one fitted value: the secondary approach to ties). The block being built is kept
+    in local variables as (sum, count) and finished blocks on a stack; a block is pooled with the
+    one before while its mean is lower, compared by cross-multiplication (counts are positive),
+    so no division happens until the end.
     """
     m = y.shape[0]
     top = -1
+    cur_sum = 0.0
+    cur_count = 0.0
+    cur_start = 0
     k = 0
     while k < m:
         s = y[k]
@@ -78,14 +101,26 @@ def _pava(y: np.ndarray, join: np.ndarray, out: np.ndarray, total: np.ndarray,
             s += y[k]
             c += 1.0
         k += 1
-        top += 1
-        total[top] = s
-        count[top] = c
-        start[top] = first
-        while top > 0 and total[top - 1] * count[top] > total[top] * count[top - 1]:
-            total[top - 1] += total[top]
-            count[top - 1] += count[top]
-            top -= 1
+        if cur_count == 0.0:
+            cur_sum, cur_count, cur_start = s, c, first
+        elif s * cur_count >= cur_sum * c:
+            top += 1
+            total[top] = cur_sum
+            count[top] = cur_count
+            start[top] = cur_start
+            cur_sum, cur_count, cur_start = s, c, first
+        else:
+            cur_sum += s
+            cur_count += c
+            while top >= 0 and total[top] * cur_count > cur_sum * count[top]:
+                cur_sum += total[top]
+                cur_count += count[top]
+                cur_start = start[top]
+                top -= 1
+    top += 1
+    total[top] = cur_sum
+    count[top] = cur_count
+    start[top] = cur_start
     for b in range(top + 1):
         end = start[b + 1] if b < top else m
         v = total[b] / count[b]
@@ -94,63 +129,80 @@ def _pava(y: np.ndarray, join: np.ndarray, out: np.ndarray, total: np.ndarray,
 
 
 @numba.njit(**_JIT)
-def _fit(d: np.ndarray, order: np.ndarray, blocks: np.ndarray, join: np.ndarray,
-         primary: bool, perm: np.ndarray, ys: np.ndarray, fs: np.ndarray, total: np.ndarray,
-         count: np.ndarray, start: np.ndarray, fitted: np.ndarray) -> None:
-    """Monotone regression of distances ``d`` on the order of the dissimilarities.
+def _sort_ties(ds: np.ndarray, first: np.ndarray, second: np.ndarray, perm: np.ndarray,
+               blocks: np.ndarray) -> None:
+    """Inside each tie block put the pairs in increasing order of distance (in place).
 
-    ``perm`` must hold a permutation of ``order`` that differs from it only inside tie blocks
-    (``order`` itself on the first call); it is updated in place.
+    Primary approach to ties (Kruskal 1964b): the order of the distances inside a block of
+    equal dissimilarities is free, and increasing order is the best one for the monotone fit.
+    Pairs with equal distances may end in any order without changing the fit.
     """
-    m = d.shape[0]
-    if primary:
-        # primary approach: inside a block of tied dissimilarities the order of the distances
-        # is free, so put them in increasing order of the current distance before the
-        # monotone fit (Kruskal 1964b). ``perm`` holds the order of the previous evaluation,
-        # so small blocks are nearly sorted and insertion sort is quick; equal distances may
-        # stay in any order without changing the fit.
-        for b in range(blocks.shape[0] // 2):
-            lo = blocks[2 * b]
-            hi = blocks[2 * b + 1]
-            if hi - lo <= 64:
-                for t in range(lo + 1, hi):
-                    item = perm[t]
-                    key = d[item]
-                    u = t - 1
-                    while u >= lo and d[perm[u]] > key:
-                        perm[u + 1] = perm[u]
-                        u -= 1
-                    perm[u + 1] = item
-            else:
-                seg = perm[lo:hi].copy()
-                vals = np.empty(hi - lo)
-                for t in range(hi - lo):
-                    vals[t] = d[seg[t]]
-                idx = np.argsort(vals, kind="mergesort")
-                for t in range(hi - lo):
-                    perm[lo + t] = seg[idx[t]]
-    for k in range(m):
-        ys[k] = d[perm[k]]
-    _pava(ys, join, fs, total, count, start)
-    for k in range(m):
-        fitted[perm[k]] = fs[k]
+    for b in range(blocks.shape[0] // 2):
+        lo = blocks[2 * b]
+        hi = blocks[2 * b + 1]
+        if hi - lo <= _INSERTION_MAX:
+            for t in range(lo + 1, hi):
+                key = ds[t]
+                if ds[t - 1] <= key:
+                    continue
+                f, s, p = first[t], second[t], perm[t]
+                u = t - 1
+                while u >= lo and ds[u] > key:
+                    ds[u + 1] = ds[u]
+                    first[u + 1] = first[u]
+                    second[u + 1] = second[u]
+                    perm[u + 1] = perm[u]
+                    u -= 1
+                ds[u + 1] = key
+                first[u + 1] = f
+                second[u + 1] = s
+                perm[u + 1] = p
+        else:
+            idx = np.argsort(ds[lo:hi], kind="mergesort")
+            d_seg = ds[lo:hi].copy()
+            f_seg = first[lo:hi].copy()
+            s_seg = second[lo:hi].copy()
+            p_seg = perm[lo:hi].copy()
+            for t in range(hi - lo):
+                ds[lo + t] = d_seg[idx[t]]
+                first[lo + t] = f_seg[idx[t]]
+                second[lo + t] = s_seg[idx[t]]
+                perm[lo + t] = p_seg[idx[t]]
 
 
 @numba.njit(**_JIT)
-def _stress_grad(x: np.ndarray, order: np.ndarray, blocks: np.ndarray, join: np.ndarray,
-                 primary: bool, grad: np.ndarray, d: np.ndarray, fitted: np.ndarray,
-                 perm: np.ndarray, ys: np.ndarray,
-                 fs: np.ndarray, total: np.ndarray, count: np.ndarray,
+def _fit_sorted(x: np.ndarray, first: np.ndarray, second: np.ndarray, perm: np.ndarray,
+                blocks: np.ndarray, join: np.ndarray, primary: bool, ds: np.ndarray,
+                fs: np.ndarray, total: np.ndarray, count: np.ndarray,
+                start: np.ndarray) -> None:
+    """Distances in dissimilarity order (``ds``) and their monotone fit (``fs``)."""
+    n_dim = x.shape[1]
+    for k in range(first.shape[0]):
+        a = first[k]
+        b = second[k]
+        s = 0.0
+        for c in range(n_dim):
+            t = x[a, c] - x[b, c]
+            s += t * t
+        ds[k] = np.sqrt(s)
+    if primary:
+        _sort_ties(ds, first, second, perm, blocks)
+    _pava(ds, join, fs, total, count, start)
+
+
+@numba.njit(**_JIT)
+def _stress_grad(x: np.ndarray, first: np.ndarray, second: np.ndarray, perm: np.ndarray,
+                 blocks: np.ndarray, join: np.ndarray, primary: bool, grad: np.ndarray,
+                 ds: np.ndarray, fs: np.ndarray, total: np.ndarray, count: np.ndarray,
                  start: np.ndarray) -> float:
-    _distances(x, d)
-    _fit(d, order, blocks, join, primary, perm, ys, fs, total, count, start, fitted)
-    m = d.shape[0]
+    _fit_sorted(x, first, second, perm, blocks, join, primary, ds, fs, total, count, start)
+    m = ds.shape[0]
     raw = 0.0
     sq = 0.0
     for k in range(m):
-        r = d[k] - fitted[k]
+        r = ds[k] - fs[k]
         raw += r * r
-        sq += d[k] * d[k]
+        sq += ds[k] * ds[k]
     n, n_dim = x.shape
     for a in range(n):
         for c in range(n_dim):
@@ -161,53 +213,29 @@ def _stress_grad(x: np.ndarray, order: np.ndarray, blocks: np.ndarray, join: np.
         return 0.0
     s2 = raw / sq
     s = np.sqrt(s2)
-    # S = sqrt(raw / sq): dS/dd_k = ((d_k - fitted_k) - S^2 d_k) / (S sq), fitted values held
-    # fixed (they are the projection onto the monotone cone, so this is the exact gradient
+    # S = sqrt(raw / sq): dS/dd_k = ((d_k - fitted_k) - S^2 d_k) / (S sq), the fitted values
+    # held fixed (they are the projection onto the monotone cone, so this is the gradient
     # wherever the order of distances inside tie blocks does not change);
     # dd_k/dx_a = (x_a - x_b) / d_k
     scale = 1.0 / (s * sq)
-    k = 0
-    for a in range(n - 1):
-        for b in range(a + 1, n):
-            dk = d[k]
-            if dk > 0.0:
-                w = scale * ((dk - fitted[k]) - s2 * dk) / dk
-                for c in range(n_dim):
-                    g = w * (x[a, c] - x[b, c])
-                    grad[a, c] += g
-                    grad[b, c] -= g
-            k += 1
+    for k in range(m):
+        dk = ds[k]
+        if dk > 0.0:
+            w = scale * ((dk - fs[k]) - s2 * dk) / dk
+            a = first[k]
+            b = second[k]
+            for c in range(n_dim):
+                g = w * (x[a, c] - x[b, c])
+                grad[a, c] += g
+                grad[b, c] -= g
     return s
-
-
-@dataclasses.dataclass(frozen=True)
-class MonotoneOrder:
-    """The sorted dissimilarities, their tie blocks and the approach to ties.
-
-    ``order`` sorts the condensed dissimilarities (stably); ``blocks`` holds start and end of
-    each block of two or more tied values, flattened; ``join[k]`` is true where sorted
-    positions ``k`` and ``k + 1`` must share a fitted value (secondary approach only).
-    """
-
-    order: np.ndarray
-    blocks: np.ndarray
-    join: np.ndarray
-    primary: bool
-
-    @classmethod
-    def build(cls, dissimilarities: np.ndarray, *, primary: bool = True) -> MonotoneOrder:
-        order, blocks = prepare_order(dissimilarities)
-        join = np.zeros(order.size, dtype=np.bool_)
-        if not primary:
-            for lo, hi in blocks.reshape(-1, 2):
-                join[lo:hi - 1] = True
-        return cls(order, blocks, join, primary)
 
 
 class StressFunction:
     """Stress-1 and gradient of flattened configurations, with a private workspace.
 
-    One instance per start (per thread): the scratch arrays are reused between evaluations.
+    One instance per start (per thread): the pair order inside tie blocks and the scratch
+    arrays are kept between evaluations.
     """
 
     def __init__(self, n: int, n_dim: int, mono: MonotoneOrder) -> None:
@@ -215,15 +243,17 @@ class StressFunction:
         self.n = n
         self.n_dim = n_dim
         self.mono = mono
-        self._work = (np.empty(m), np.empty(m), mono.order.copy(), np.empty(m),
-                      np.empty(m), np.empty(m), np.empty(m), np.empty(m, dtype=np.int64))
+        self._pairs = (mono.first.copy(), mono.second.copy(), mono.order.copy())
+        self._work = (np.empty(m), np.empty(m), np.empty(m), np.empty(m),
+                      np.empty(m, dtype=np.int64))
         self.n_eval = 0
 
     def __call__(self, flat: np.ndarray) -> tuple[float, np.ndarray]:
         x = np.ascontiguousarray(flat, dtype=np.float64).reshape(self.n, self.n_dim)
         grad = np.empty_like(x)
         mono = self.mono
-        s = _stress_grad(x, mono.order, mono.blocks, mono.join, mono.primary, grad, *self._work)
+        s = _stress_grad(x, *self._pairs, mono.blocks, mono.join, mono.primary, grad,
+                         *self._work)
         self.n_eval += 1
         return float(s), grad.ravel()
 
@@ -231,13 +261,15 @@ class StressFunction:
 def stress_fit(x: np.ndarray, mono: MonotoneOrder) -> tuple[float, np.ndarray, np.ndarray]:
     """Stress-1, configuration distances and fitted monotone values (condensed order)."""
     x = np.ascontiguousarray(x, dtype=np.float64)
-    n = x.shape[0]
-    m = n * (n - 1) // 2
+    m = mono.order.size
+    first, second, perm = mono.first.copy(), mono.second.copy(), mono.order.copy()
+    ds, fs = np.empty(m), np.empty(m)
+    _fit_sorted(x, first, second, perm, mono.blocks, mono.join, mono.primary, ds, fs,
+                np.empty(m), np.empty(m), np.empty(m, dtype=np.int64))
     d = np.empty(m)
     fitted = np.empty(m)
-    _distances(x, d)
-    _fit(d, mono.order, mono.blocks, mono.join, mono.primary, mono.order.copy(),
-         np.empty(m), np.empty(m), np.empty(m), np.empty(m), np.empty(m, dtype=np.int64), fitted)
-    sq = float(np.dot(d, d))
-    raw = float(np.dot(d - fitted, d - fitted))
+    d[perm] = ds
+    fitted[perm] = fs
+    sq = float(np.dot(ds, ds))
+    raw = float(np.dot(ds - fs, ds - fs))
     return (float(np.sqrt(raw / sq)) if sq > 0 else 1.0), d, fitted

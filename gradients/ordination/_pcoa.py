@@ -9,6 +9,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 import pandas as pd
 import scipy.linalg
+import scipy.sparse.linalg
 
 from .._errors import InputError
 from .._result import ResultMixin
@@ -41,9 +42,8 @@ class PCoAResult(ResultMixin):
         axes with positive eigenvalues (all of them, or the first ``dimensions``).
     eigenvalues : pandas.Series
         Eigenvalues of the Gower-centred matrix in decreasing order, indexed ``axis1`` ...,
-        negative ones included. Values within ``1e-9`` of the largest (relative) are set to 0.
-        When the truncated solver was used, only the leading and the negative eigenvalues are
-        present, each under the index of its rank among all ``n``.
+        negative ones included (all ``n`` of them, one of which is the 0 that double-centring
+        always gives). Values within ``1e-9`` of the largest (relative) are set to 0.
     proportion_explained : pandas.Series
         Each positive eigenvalue divided by the sum of the positive eigenvalues.
     correction : str or None
@@ -88,22 +88,37 @@ def lingoes_constant(square: np.ndarray) -> float:
     Replacing ``d`` by ``sqrt(d**2 + 2 c)`` for every pair of distinct sites adds ``c`` to every
     non-trivial eigenvalue, so the smallest becomes 0 (Legendre & Legendre 2012, sect. 9.3.4).
     """
-    g = gower_centre(-0.5 * square**2)
-    smallest = float(scipy.linalg.eigh(g, eigvals_only=True, subset_by_index=[0, 0])[0])
+    smallest = float(np.linalg.eigvalsh(gower_centre(-0.5 * square**2))[0])
     return max(-smallest, 0.0)
 
 
-def cailliez_constant(square: np.ndarray) -> float:
+def cailliez_constant(square: np.ndarray, *, dense_max: int = 400) -> float:
     """Cailliez (1983) constant: the largest eigenvalue of the 2n x 2n block matrix.
 
     ``[[0, 2 G1], [-I, -4 G2]]`` with ``G1`` the Gower-centred ``-d**2 / 2`` and ``G2`` the
     Gower-centred ``-d / 2``. Adding it to every distance between distinct sites gives the
     smallest constant that makes the matrix Euclidean (Cailliez 1983; Legendre & Legendre 2012,
-    sect. 9.3.4).
+    sect. 9.3.4). Up to ``dense_max`` sites the block matrix is solved densely; beyond, its
+    eigenvalue of largest real part is found by Arnoldi iteration on products with the blocks
+    (:func:`scipy.sparse.linalg.eigs`), falling back to the dense solver if that fails.
     """
     n = square.shape[0]
     g1 = gower_centre(-0.5 * square**2)
     g2 = gower_centre(-0.5 * square)
+    if n > dense_max:
+        def matvec(z: np.ndarray) -> np.ndarray:
+            u, v = z[:n], z[n:]
+            return np.concatenate((2.0 * (g1 @ v), -u - 4.0 * (g2 @ v)))
+
+        op = scipy.sparse.linalg.LinearOperator((2 * n, 2 * n), matvec=matvec, dtype=np.float64)
+        start = np.random.default_rng(0).normal(size=2 * n)
+        try:
+            value = scipy.sparse.linalg.eigs(op, k=1, which="LR", v0=start,
+                                             return_eigenvectors=False)[0]
+            if abs(value.imag) <= 1e-8 * max(abs(value.real), 1.0):
+                return max(float(value.real), 0.0)
+        except scipy.sparse.linalg.ArpackNoConvergence:
+            pass
     block = np.zeros((2 * n, 2 * n))
     block[:n, n:] = 2.0 * g1
     block[n:, :n] = -np.eye(n)
@@ -124,24 +139,26 @@ def _check_dimensions(dimensions: object) -> int | None:
     return int(dimensions)
 
 
-def _spectrum(g: np.ndarray, k: int | None) -> tuple[np.ndarray, np.ndarray, np.ndarray, bool]:
-    """Eigenvalues (decreasing), their ranks (1-based) and the leading eigenvectors.
+def _spectrum(g: np.ndarray, k: int | None) -> tuple[np.ndarray, np.ndarray, bool]:
+    """All eigenvalues (decreasing) and the eigenvectors of the leading ones.
 
-    Returns ``values, ranks, vectors, truncated`` where ``vectors[:, i]`` belongs to
-    ``values[i]`` for the leading values. With ``k`` given and ``n`` large, only the ``k``
-    largest eigenpairs and the negative eigenvalues are computed.
+    Returns ``values, vectors, truncated``; ``vectors[:, i]`` belongs to ``values[i]``. With ``k``
+    given and ``n`` large, the eigenvalues come from a values-only symmetric solver and only the
+    ``k`` leading eigenvectors are computed, by Lanczos iteration
+    (:func:`scipy.sparse.linalg.eigsh`), which is several times faster than the full problem.
     """
     n = g.shape[0]
     if k is not None and n >= _TRUNCATE_MIN_N and k <= _TRUNCATE_MAX_SHARE * n:
-        top, vecs = scipy.linalg.eigh(g, subset_by_index=[n - k, n - 1])
-        top, vecs = top[::-1], vecs[:, ::-1]
-        tol = EIGEN_RTOL * max(abs(float(top[0])), 1e-300)
-        neg = scipy.linalg.eigh(g, eigvals_only=True, subset_by_value=(-np.inf, -tol))[::-1]
-        values = np.concatenate((top, neg))
-        ranks = np.concatenate((np.arange(1, k + 1), np.arange(n - neg.size + 1, n + 1)))
-        return values, ranks, vecs, True
-    values, vecs = scipy.linalg.eigh(g)
-    return values[::-1], np.arange(1, n + 1), vecs[:, ::-1], False
+        values = np.linalg.eigvalsh(g)[::-1]
+        start = np.random.default_rng(0).normal(size=n)  # fixed: results are reproducible
+        try:
+            top, vecs = scipy.sparse.linalg.eigsh(g, k=k, which="LA", v0=start)
+        except scipy.sparse.linalg.ArpackNoConvergence:
+            top, vecs = scipy.linalg.eigh(g, subset_by_index=[n - k, n - 1])
+        order = np.argsort(top)[::-1]
+        return values, vecs[:, order], True
+    values, vecs = np.linalg.eigh(g)
+    return values[::-1], vecs[:, ::-1], False
 
 
 def pcoa(
@@ -163,8 +180,8 @@ def pcoa(
         negative eigenvalues.
     dimensions : int, optional
         Keep only the first ``dimensions`` axes in ``scores``. For large matrices (250 sites or
-        more, ``dimensions`` at most a fifth of them) only those eigenpairs and the negative
-        eigenvalues are computed, which is faster.
+        more, ``dimensions`` at most a fifth of them) only those eigenvectors are computed
+        (Lanczos iteration), with all eigenvalues from a values-only solver, which is faster.
 
     Returns
     -------
@@ -228,7 +245,7 @@ def pcoa(
                          "Check the dissimilarity and the input table.")
     notes: list[str] = []
 
-    values, ranks, vecs, truncated = _spectrum(gower_centre(-0.5 * square**2), k)
+    values, vecs, _ = _spectrum(gower_centre(-0.5 * square**2), k)
     tol = EIGEN_RTOL * abs(float(values[0]))
     constant = 0.0
     applied = dm
@@ -236,7 +253,7 @@ def pcoa(
         if np.any(values < -tol):
             before = float(values.min())
             if correction == "lingoes":
-                constant = lingoes_constant(square)
+                constant = -before
                 fixed = np.sqrt(square**2 + 2.0 * constant)
                 relation = f"d' = sqrt(d^2 + 2c), c = {constant:.6g} (Lingoes 1971)"
             else:
@@ -247,7 +264,7 @@ def pcoa(
             square = fixed
             applied = DistanceMatrix.from_square(fixed, dm.labels, metric=dm.metric,
                                                  transform=dm.transform)
-            values, ranks, vecs, truncated = _spectrum(gower_centre(-0.5 * square**2), k)
+            values, vecs, _ = _spectrum(gower_centre(-0.5 * square**2), k)
             tol = EIGEN_RTOL * abs(float(values[0]))
             notes.append(
                 f"{correction.capitalize()} correction applied to every pair of distinct sites: "
@@ -258,16 +275,12 @@ def pcoa(
             notes.append(f"correction={correction!r} asked, but the matrix has no negative "
                          "eigenvalues (it is Euclidean): no correction was applied.")
     values = np.where(np.abs(values) <= tol, 0.0, values)
-    index = pd.Index(axis_names(0) + [f"axis{r}" for r in ranks], name="axis")
+    index = pd.Index(axis_names(n), name="axis")
     eigenvalues = pd.Series(values, index=index, name="eigenvalue")
 
     positive = values > 0
     n_pos = int(np.count_nonzero(positive))
-    if truncated:
-        # sum of positive eigenvalues = trace - sum of the negative ones (all were computed)
-        pos_sum = float(np.trace(gower_centre(-0.5 * square**2))) - float(values[~positive].sum())
-    else:
-        pos_sum = float(values[positive].sum())
+    pos_sum = float(values[positive].sum())
     prop = values[positive] / pos_sum
     proportion = pd.Series(prop, index=index[positive], name="proportion")
     negative = values < 0
@@ -281,11 +294,6 @@ def pcoa(
             "explained are relative to the positive sum, and the negative axes have no "
             "scores. Consider correction='lingoes' or 'cailliez', or a square-root transform of "
             "the dissimilarities."
-        )
-    if truncated:
-        notes.append(
-            f"Only the {k} largest and the negative eigenvalues were computed (truncated solver "
-            f"for {n} sites); the others lie between them."
         )
 
     keep = n_pos if k is None else min(k, n_pos)
