@@ -907,20 +907,6 @@ def _build(raws: dict[str, RawTable], opts: _Options, *, shared_table: bool = Fa
     if locations is not None:
         locations = locations.loc[index]
 
-    if "environment" in tables:
-        env, dropped_sites = _apply_missing(env, cens, tables["environment"], opts, log)
-        cens = cens.loc[env.index, list(env.columns)]
-        if dropped_sites:
-            keep = env.index
-            community = community.loc[keep]
-            if locations is not None:
-                locations = locations.loc[keep]
-        limits = env.select_dtypes("number").where(cens[env.select_dtypes("number").columns])
-        limits = limits.reindex(columns=env.columns)
-        env = _apply_censored(env, cens, tables["environment"], opts, log)
-    else:
-        limits = pd.DataFrame(index=community.index.copy())
-
     source = tables["community"].raw.source
     totals = community.sum(axis=1).to_numpy()
     empty = [s for s, t in zip(community.index, totals, strict=True) if t == 0]
@@ -943,9 +929,23 @@ def _build(raws: dict[str, RawTable], opts: _Options, *, shared_table: bool = Fa
             len(empty), sites=tuple(empty),
         ))
         keep = community.index[totals > 0]
-        community, env, cens, limits = (t.loc[keep] for t in (community, env, cens, limits))
+        community, env, cens = (t.loc[keep] for t in (community, env, cens))
         if locations is not None:
             locations = locations.loc[keep]
+
+    if "environment" in tables:
+        env, dropped_sites = _apply_missing(env, cens, tables["environment"], opts, log)
+        cens = cens.loc[env.index, list(env.columns)]
+        if dropped_sites:
+            keep = env.index
+            community = community.loc[keep]
+            if locations is not None:
+                locations = locations.loc[keep]
+        limits = env.select_dtypes("number").where(cens[env.select_dtypes("number").columns])
+        limits = limits.reindex(columns=env.columns)
+        env = _apply_censored(env, cens, tables["environment"], opts, log)
+    else:
+        limits = pd.DataFrame(index=community.index.copy())
 
     if len(community) < MIN_SITES:
         raise InputError(
@@ -1129,10 +1129,11 @@ class Survey:
     Checks, in order: site IDs (present, unique); abundances (numbers, not censored, not empty,
     not negative); environmental columns (numeric or categorical, no stray text in numeric
     columns); locations (points, CRS, latitude within [-90, 90], longitude within [-180, 180],
-    swapped axes); the same sites in every table (`shared_sites_only`); empty cells
-    (`missing`); censored values (`censored`); sites with no taxa (`empty_sites`); taxa absent
-    everywhere (`empty_taxa`); constant variables (`constant`). Every problem raises
-    :class:`gradients.InputError` naming the file, sites, columns and the fix.
+    swapped axes); the same sites in every table (`shared_sites_only`); sites with no taxa
+    (`empty_sites`); empty cells (`missing`); censored values (`censored`, applied to the sites
+    that remain); taxa absent everywhere (`empty_taxa`); constant variables (`constant`).
+    Every problem raises :class:`gradients.InputError` naming the file, sites, columns and the
+    fix.
 
     Substituting half the detection limit for censored values is common practice but biased;
     robust regression on order statistics (``censored="ros"``) imputes them from a log-normal

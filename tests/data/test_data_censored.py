@@ -171,3 +171,12 @@ def test_censored_after_missing_policy(tables):
     s = Survey(community, env, censored="limit", missing="drop-sites")
     assert [d.action for d in s.log] == ["drop-sites", "censored"]
     assert "3 of 5 values" in s.log[-1].detail
+
+
+def test_censored_policy_sees_only_the_sites_kept(tables):
+    community, environment = tables
+    c = community.assign(A=[0, 2, 3, 0, 1, 2], B=[0, 1, 1, 4, 2, 2])  # site a is empty
+    s = Survey(c, environment, censored="ros", empty_sites="drop")
+    assert [d.action for d in s.log] == ["drop-sites", "censored"]
+    assert "2 of 5 values" in s.log[-1].detail and "3 detected" in s.log[-1].detail
+    assert s.log[-1].sites == ("c", "e")
