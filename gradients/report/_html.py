@@ -123,6 +123,7 @@ def section_html(section: Section, figures: dict[str, bytes], files: dict[str, s
         links = ", ".join(f"<code>tables/{esc(n)}.csv</code>" for n in others)
         parts.append(f'<p class="more">Tables: {links}.</p>')
     if section.notes:
+        parts.append("<h3>Notes and caveats</h3>")
         parts.append('<ol class="notes">' + "".join(f"<li>{esc(n)}</li>" for n in section.notes)
                      + "</ol>")
     parts.append("</section>")

@@ -293,6 +293,7 @@ def vectors_step(ctx: Context) -> None:
                 for v, row in sig.head(5).iterrows()) + ".")
     sec.tables["vector_fits"] = table
     sec.shown.append("vector_fits")
+    sec.display["vector_fits"] = [*axes, "r2", "pvalue", "pvalue_adjusted", "n"]
     sec.notes.extend(fit.notes)
     ctx.sections.append(sec)
     ctx.methods.append(
@@ -745,8 +746,9 @@ def verdicts_step(ctx: Context) -> None:
     sec.display["hypothesis_verdicts"] = [
         "verdict", "partial_mantel_r", "partial_mantel_pvalue_holm",
         "partial_mantel_pvalue_spatial", "mantel_r", "mantel_pvalue_holm",
-        "regression_std_coefficient", "regression_pvalue", "best_vector", "vector_r2",
-        "caveats"]
+        "regression_std_coefficient", "regression_pvalue", "best_vector", "vector_r2"]
+    sec.notes.extend(f"{name}: {c}." for name, c in zip(table.index, caveats, strict=True)
+                     if c != "none")
     if spatial:
         sec.paragraphs.append("Space: " + "; ".join(spatial) + ". Simple and partial Mantel "
                               "tests can then give p-values that are too small; the "

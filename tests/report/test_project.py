@@ -119,3 +119,12 @@ def test_every_key_is_documented() -> None:
             assert f"[{section}]" in doc, section
         for key in keys:
             assert re.search(rf"`{re.escape(key)}`", doc), f"{section}.{key} not documented"
+
+
+def test_example_project_is_valid() -> None:
+    from gradients.report._check import check_project
+
+    root = Path(__file__).parents[2]
+    survey, project = check_project(root / "examples" / "corvanne" / "project.toml")
+    assert survey.community.shape == (60, 40)
+    assert project["output.folder"] == (root / "corvanne-report").resolve()
