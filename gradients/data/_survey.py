@@ -519,7 +519,10 @@ def _check_geographic(table: _Table, x: np.ndarray, y: np.ndarray, xname: str, y
             f"coordinates=({xname!r}, {yname!r}) if the names suggest degrees.",
             file=raw.path, columns=[xname, yname],
         )
-    if len(bad_y) and np.all(np.abs(x) <= 90) and np.all(np.abs(y) <= 180):
+    # swapped: most latitudes are impossible and swapping the columns makes every value valid
+    # (a single typo such as 95 for 59 is reported as out of range instead)
+    if (len(bad_y) >= max(1, len(y) / 2) and np.all(np.abs(x) <= 90)
+            and np.all(np.abs(y) <= 180)):
         ylabel = "latitude" if named else "y (latitude)"
         raise InputError(
             f"{_cap(raw.source)}: the coordinates look swapped: {ylabel} column {yname!r} holds "

@@ -158,3 +158,4 @@ def test_random_text_files(community, environment, censored):
        st.sampled_from([b"", b"PK\x03\x04", b"SQLite format 3\x00", b"\xff\xfe", b"{"]))
 def test_random_bytes(data, ext, prefix):
     _read({f"community.{ext}": prefix + data})
+

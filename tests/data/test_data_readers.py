@@ -300,3 +300,45 @@ def test_environment_and_locations_in_one_table(tmp_path, community, environment
     # different frames: the coordinate columns stay environmental variables
     s = Survey(community, both, lonlat)
     assert "longitude" in s.environment.columns
+
+
+COMMUNITY = "site,A,B\nS1,1,0\nS2,0,2\nS3,4,1\n"
+ENVIRONMENT = "site,Cu,pH\nS1,12,6.5\nS2,30,7.1\nS3,8,6.9\n"
+
+
+@pytest.mark.parametrize("community,environment,pattern", [
+    # each bad input, written to files: the message names the file, the site(s) and column(s)
+    (COMMUNITY, "site,Cu,pH\nS1,12,6.5\nS2,30,7.1\nS4,8,6.9\n",
+     r"'S3'.*c.csv.*e.csv|c.csv.*but not in.*e.csv.*'S3'"),
+    ("site,A,B\nS1,1,0\nS2,0,2\nS2,4,1\n", ENVIRONMENT,
+     r"c.csv' repeats site ID.*'S2' \(line 3, line 4\)"),
+    ("id,A,B\nS1,1,0\nS2,0,2\nS3,4,1\n", ENVIRONMENT, r"c.csv' has no site column 'site'.*'id'"),
+    ("site,A,B\nS1,1,0\nS2,0,x\nS3,4,1\n", ENVIRONMENT,
+     r"c.csv'.*site 'S2', taxon 'B': 'x', line 3"),
+    ("site,A,B\nS1,1,0\nS2,0,-2\nS3,4,1\n", ENVIRONMENT, r"c.csv'.*negative: site 'S2', taxon 'B'"),
+    ("site,A,B\nS1,1,0\nS2,0,0\nS3,4,1\n", ENVIRONMENT, r"c.csv'.*no taxa at all.*'S2', line 3"),
+    (COMMUNITY, "site,Cu,pH\nS1,12,6.5\nS2,,7.1\nS3,8,6.9\n",
+     r"e.csv' has 1 empty.*site 'S2', column 'Cu', line 3"),
+    (COMMUNITY, "site,Cu,pH\nS1,12,7\nS2,30,7\nS3,8,7\n", r"e.csv'.*'pH' \(every site = 7\)"),
+    (COMMUNITY, "site,Cu,pH\nS1,<5,6.5\nS2,30,7.1\nS3,8,6.9\n",
+     r"e.csv' has 1 value\(s\) below a detection limit.*site 'S1', column 'Cu', line 2"),
+])
+def test_bad_inputs_in_files_name_file_site_column(tmp_path, community, environment, pattern):
+    c = write(tmp_path / "c.csv", community)
+    e = write(tmp_path / "e.csv", environment)
+    with pytest.raises(InputError, match=pattern):
+        read_survey(c, e)
+
+
+@pytest.mark.parametrize("locations,pattern", [
+    ("site,lon,lat\nS1,9,61\nS2,9,95\nS3,9,61\n",
+     r"l.csv'.*latitude \('lat'\).*'S2' \(95, line 3\)"),
+    ("site,lon,lat\nS1,9,61\nS2,200,61\nS3,9,61\n", r"l.csv'.*longitude \('lon'\).*'S2'"),
+    ("site,longitude,latitude\nS1,61,120\nS2,61,121\nS3,61,122\n", r"l.csv'.*look swapped"),
+    ("site,x,y\nS1,1,2\nS2,3,4\nS3,5,6\n", r"l.csv'.*need a coordinate reference system"),
+])
+def test_bad_locations_in_files(tmp_path, locations, pattern):
+    c = write(tmp_path / "c.csv", COMMUNITY)
+    loc = write(tmp_path / "l.csv", locations)
+    with pytest.raises(InputError, match=pattern):
+        read_survey(c, None, loc)
