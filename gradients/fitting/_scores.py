@@ -1,9 +1,8 @@
 """Site scores for the fitting stage: one labelled, numeric, finite DataFrame of chosen axes.
 
-The ordination stage provides ``gradients.ordination.as_scores``; when it is available it is
-used to turn an ordination result (or any DataFrame of site scores) into a DataFrame, and this
-module then only selects the axes and checks the values. Until it exists, anything with a
-``.scores`` DataFrame, or a DataFrame itself, is accepted here directly.
+The ordination stage's ``gradients.ordination.as_scores`` turns an ordination result (or any
+DataFrame of site scores) into a labelled float DataFrame; this module adds the fitting stage's
+default choice of axes (the first two) and its checks.
 """
 
 from __future__ import annotations
@@ -15,6 +14,7 @@ import numpy as np
 import pandas as pd
 
 from .._errors import InputError, format_items
+from ..ordination import as_scores
 
 __all__ = ["AxesLike", "site_scores"]
 
@@ -22,21 +22,11 @@ AxesLike = int | Sequence[str] | None
 
 
 def _as_frame(obj: object) -> pd.DataFrame:
-    try:  # the ordination stage's converter, when present
-        from ..ordination import as_scores  # type: ignore[attr-defined]
-    except ImportError:
-        as_scores = None
-    if as_scores is not None:
-        return as_scores(obj)
-    if isinstance(obj, pd.DataFrame):
-        return obj
-    inner = getattr(obj, "scores", None)
-    if isinstance(inner, pd.DataFrame):
-        return inner
-    raise InputError(
-        "`scores` must be an ordination result (with a `.scores` DataFrame) or a DataFrame of "
-        f"site scores indexed by site label; got {type(obj).__name__}."
-    )
+    if not isinstance(obj, pd.DataFrame | pd.Series):
+        inner = getattr(obj, "scores", None)
+        if isinstance(inner, pd.DataFrame):  # any result carrying a `.scores` table
+            obj = inner
+    return as_scores(obj)
 
 
 def site_scores(obj: object, axes: AxesLike = None, *, n_default: int = 2) -> pd.DataFrame:

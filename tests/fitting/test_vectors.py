@@ -221,3 +221,22 @@ def test_same_rng_same_result_any_n_jobs_and_inputs_unchanged():
     b = fit_vectors(sc, env, n_resamples=2500, rng=7, n_jobs=2)
     np.testing.assert_array_equal(a.null_distribution, b.null_distribution)
     pd.testing.assert_frame_equal(env, before)
+
+
+def test_accepts_an_ordination_result_and_r2_is_rotation_invariant():
+    # Theory: PCoA of Euclidean distances among 2-D points returns the points up to rotation,
+    # reflection and centring, and r2 of a regression on them is unchanged by those
+    # transformations; so r2 on the PCoA result equals statsmodels OLS on the raw points.
+    from scipy.spatial.distance import pdist, squareform
+
+    from gradients import DistanceMatrix
+    from gradients.ordination import pcoa
+
+    rng = np.random.default_rng(0)
+    pts = rng.normal(size=(20, 2))
+    labels = [f"s{i}" for i in range(20)]
+    result = pcoa(DistanceMatrix.from_square(squareform(pdist(pts)), labels=labels))
+    env = pd.DataFrame({"v": pts[:, 0] + rng.normal(0, 0.5, 20)}, index=labels)
+    fit = fit_vectors(result, env, n_resamples=9, rng=0)
+    ols = sm.OLS(env["v"].to_numpy(), sm.add_constant(pts)).fit()
+    assert fit.table.loc["v", "r2"] == pytest.approx(ols.rsquared, abs=1e-10)
