@@ -315,3 +315,32 @@ def test_gower_site_without_values_named():
     t = pd.DataFrame({"x": [1.0, np.nan, 2.0], "y": [3.0, np.nan, 6.0]}, index=list("pqr"))
     with pytest.raises(InputError, match=r"site\(s\) with no value to compare: 'q'"):
         dissimilarity(t, "gower")
+
+
+def test_extended_equals_floyd_warshall_on_saturated_pairs():
+    # Two ways agree: a plain Floyd-Warshall written here over the unsaturated pairs gives the
+    # path lengths; saturated pairs take them, unsaturated pairs keep their own value.
+    rng = np.random.default_rng(21)
+    x = np.zeros((14, 32))
+    for i in range(14):  # a long gradient: each site holds a window of taxa
+        x[i, 2 * i : 2 * i + 5] = rng.integers(1, 6, size=5)
+    t = pd.DataFrame(x, index=[f"q{i}" for i in range(14)])
+    plain = dissimilarity(t).square()
+    sat = plain >= 1 - 1e-10
+    np.fill_diagonal(sat, False)
+    assert sat.any()
+    paths = np.where(sat, np.inf, plain)
+    for k in range(14):
+        paths = np.minimum(paths, paths[:, [k]] + paths[[k], :])
+    expect = np.where(sat, paths, plain)
+    np.testing.assert_allclose(dissimilarity(t, extended=True).square(), expect, rtol=1e-12)
+
+
+@pytest.mark.parametrize("metric", [m for m in METRICS if METRICS[m].upper is not None])
+def test_bounded_coefficients_stay_in_range(metric):
+    # theory: each bounded coefficient lies in [0, its maximum] (1, or sqrt(2) for chord and
+    # Hellinger: distances between points on the unit sphere's positive orthant)
+    t = _table(30, n=30, p=8, lam=0.7)
+    d = dissimilarity(t, metric).condensed
+    assert d.min() >= 0
+    assert d.max() <= METRICS[metric].upper + 1e-12
