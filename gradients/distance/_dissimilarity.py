@@ -353,7 +353,6 @@ def gower_distance(
     variable_types: Mapping[object, str] | None = None,
     empty: str = "error",
     dtype: type | np.dtype | None = None,
-    metric_name: str = "gower",
 ) -> DistanceMatrix:
     """Gower's (1971) dissimilarity ``1 - S`` for a table of mixed variable types.
 
@@ -455,7 +454,7 @@ def gower_distance(
     no_data = np.all(np.isnan(x) | (w[None, :] == 0), axis=1)
     _resolve_undefined(out, None, frame.index, "gower", METRICS["gower"], empty,
                        empty_rows=no_data, nothing="no value to compare")
-    return DistanceMatrix(out, frame.index, metric=metric_name, dtype=out_dtype)
+    return DistanceMatrix(out, frame.index, metric="gower", dtype=out_dtype)
 
 
 def _gower_type(s: pd.Series) -> str:
