@@ -25,6 +25,18 @@ def _from_result(obj: Any) -> pd.DataFrame | None:
     return None
 
 
+def _is_real_column(column: pd.Series) -> bool:
+    """Real numbers: a numeric dtype (not bool or complex), or an object column of numbers."""
+    if pd.api.types.is_bool_dtype(column) or pd.api.types.is_complex_dtype(column):
+        return False
+    if pd.api.types.is_numeric_dtype(column):
+        return True
+    if column.dtype == object:  # e.g. read from a spreadsheet cell by cell
+        kind = pd.api.types.infer_dtype(column, skipna=True)
+        return kind in ("integer", "floating", "mixed-integer-float", "decimal", "empty")
+    return False
+
+
 def _select_axes(frame: pd.DataFrame, axes: object) -> pd.DataFrame:
     if axes is None:
         return frame
@@ -131,9 +143,7 @@ def as_scores(
         raise InputError(f"The scores repeat column name(s) {format_items(dup)}.",
                          columns=list(dup))
     frame = _select_axes(frame, axes)
-    bad = [c for c in frame.columns
-           if not pd.api.types.is_numeric_dtype(frame[c]) or pd.api.types.is_bool_dtype(frame[c])
-           or pd.api.types.is_complex_dtype(frame[c])]
+    bad = [c for c in frame.columns if not _is_real_column(frame[c])]
     if bad:
         raise InputError(
             f"Score column(s) {format_items(bad)} are not numeric. Scores must be numbers, one "

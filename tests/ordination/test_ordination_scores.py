@@ -133,3 +133,14 @@ def test_taxon_scores_errors():
         taxon_scores(s, comm.assign(t2=1).assign(t1=[1, -1, 0, 0, 0, 0]))
     with pytest.raises(InputError, match="not in the scores: 'z'"):
         taxon_scores(s, pd.DataFrame({"t1": [1] * 7}, index=[*SITES, "z"]))
+
+
+def test_object_column_of_numbers_accepted():
+    # spreadsheet readers can give object columns holding numbers; text stays refused
+    s = pd.DataFrame({"axis1": [0.5, 1, -2.25]}, index=["a", "b", "c"], dtype=object)
+    out = as_scores(s)
+    assert out["axis1"].dtype == np.float64
+    assert out["axis1"].tolist() == [0.5, 1.0, -2.25]
+    mixed = pd.DataFrame({"axis1": [0.5, "1.0", 2.0]}, index=["a", "b", "c"], dtype=object)
+    with pytest.raises(InputError, match="'axis1'"):
+        as_scores(mixed)
