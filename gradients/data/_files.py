@@ -378,7 +378,7 @@ def read_file(
     layer: str | int | None = None,
 ) -> RawTable:
     """Read one input file as a :class:`RawTable`, checking the file itself."""
-    p = Path(path)
+    p = Path(path).expanduser()
     name = str(path)
     if not p.exists():
         raise InputError(f"The {role} file {name!r} does not exist (working folder: "
