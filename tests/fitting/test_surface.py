@@ -230,3 +230,26 @@ def test_input_errors():
     with pytest.raises(InputError, match="missing"):
         fit_surface(sc, gap, n_resamples=0)
     assert fit_surface(sc, gap, n_resamples=0, missing="complete").n == 29
+
+
+def test_reml_choice_minimises_directly_computed_restricted_likelihood():
+    # Wood (2011, 2017): with the scale profiled out, -2 x restricted log-likelihood is, up to
+    # a constant, (n - 3) log(||y - X b||^2 + lambda b'S b) + log|X'X + lambda S| - r log lambda
+    # (r = rank of S, 3 = unpenalised plane); computed here with direct solves and slogdet.
+    sc, rng = _cloud(n=70, seed=13)
+    y = pd.Series(np.sin(1.5 * sc.axis1) * sc.axis2 + rng.normal(0, 0.3, 70), index=sc.index,
+                  name="y")
+    fit = fit_surface(sc, y, method="reml", n_resamples=0)
+    assert fit.method == "reml"
+    x, s = fit._basis.model_matrix, fit._basis.penalty
+    r = np.linalg.matrix_rank(s)
+
+    def reml(lam):
+        a = x.T @ x + lam * s
+        beta = np.linalg.solve(a, x.T @ y.to_numpy())
+        prss = ((y.to_numpy() - x @ beta) ** 2).sum() + lam * beta @ s @ beta
+        return (70 - 3) * np.log(prss) + np.linalg.slogdet(a)[1] - r * np.log(lam)
+
+    best = reml(fit.smoothing)
+    for factor in (0.5, 0.8, 1.25, 2.0):
+        assert best <= reml(fit.smoothing * factor) + 1e-9
