@@ -19,21 +19,23 @@ CAUTIONS = (
 
 def methods_paragraph(*, version: str, sentences: list[str], decisions: list[str],
                       n_resamples: int, seed: int, n_sites: int, n_taxa: int,
-                      groups: dict[str, int] | None = None, strata: str | None = None,
+                      groups: dict[str, dict[str, int]] | None = None,
+                      strata: str | None = None,
                       extra: dict[str, Any] | None = None) -> str:
     """Methods text in plain prose, one paragraph of analysis and one of cautions.
 
     ``sentences`` come from the analysis steps in the order they ran; ``decisions`` are the
-    records of :attr:`Survey.log`.
+    records of :attr:`Survey.log`; ``groups`` maps each grouping variable (strata, factors) to
+    the number of sites per class.
     """
     first = [
         f"Analyses were run with gradients {version} on {n_sites} sites and {n_taxa} taxa."
     ]
     if decisions:
         first.append("Input decisions: " + " ".join(d.rstrip(".") + "." for d in decisions))
-    if groups:
-        parts = ", ".join(f"{k} ({v} sites)" for k, v in groups.items())
-        first.append(f"Sites per {strata}: {parts}.")
+    for name, counts in (groups or {}).items():
+        parts = ", ".join(f"{k} ({v})" for k, v in counts.items())
+        first.append(f"Sites per {name}: {parts}.")
     first += sentences
     perm = (f"All permutation tests used {n_resamples} permutations (p = (b + 1)/(P + 1), "
             f"Phipson & Smyth 2010) with random seed {seed}")

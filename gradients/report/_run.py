@@ -123,15 +123,20 @@ def analyse(survey: Any, *, settings: dict[str, Any] | None = None,
     run_steps(ctx)
     decisions = [str(d) for d in getattr(survey, "log", ())]
     strata = full["design.strata"]
-    groups = None
-    if strata and strata in survey.environment.columns:
-        groups = {str(k): int(v) for k, v in
-                  survey.environment[strata].value_counts(sort=False).items()}
+    groups: dict[str, dict[str, int]] = {}
+    env = survey.environment
+    grouping = [strata] if strata else []
+    fac = ctx.results.get("factors")
+    if fac is not None:
+        grouping += [f for f in fac.table.index if f not in grouping]
+    for g in grouping:
+        if g in env.columns:
+            groups[str(g)] = {str(k): int(v) for k, v in
+                              env[g].value_counts(sort=False).sort_index().items()}
     methods = methods_paragraph(
         version=_version(), sentences=ctx.methods, decisions=decisions,
         n_resamples=ctx.n_resamples, seed=ctx.seed, n_sites=survey.community.shape[0],
         n_taxa=survey.community.shape[1], groups=groups, strata=strata)
-    env = survey.environment
     run_info: dict[str, Any] = {
         "software": software_versions(),
         "platform": {"system": platform.system(), "machine": platform.machine(),
