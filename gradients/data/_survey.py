@@ -1208,6 +1208,13 @@ limit (substitution, common practice; biased, Helsel 2012).
         obj._set(parts)
         return obj
 
+    def __getstate__(self) -> dict[str, object]:
+        return {name: getattr(self, name) for name in self.__slots__}
+
+    def __setstate__(self, state: dict[str, object]) -> None:
+        for name, value in state.items():
+            object.__setattr__(self, name, value)
+
     def __setattr__(self, name: str, value: object) -> None:
         raise AttributeError(f"Survey is read-only; cannot set {name!r}. Build a new Survey "
                              "(or use .subset()) instead.")

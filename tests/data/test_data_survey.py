@@ -257,3 +257,14 @@ def test_subset_and_describe(community, environment, lonlat):
 def test_survey_repr_shows_decisions(community):
     s = Survey(community.assign(Delta=0))
     assert "[1]" in repr(s) and "Delta" in repr(s)
+
+
+def test_pickle_and_copy_round_trip(community, environment, lonlat):
+    import copy
+    import pickle
+
+    s = Survey(community, environment, lonlat, empty_taxa="drop")
+    for other in (pickle.loads(pickle.dumps(s)), copy.deepcopy(s), copy.copy(s)):
+        assert other.equals(s) and other.log == s.log and other.sources == s.sources
+        with pytest.raises(AttributeError):
+            other.log = ()  # type: ignore[misc]
