@@ -88,7 +88,7 @@ class NMDSResult(ResultMixin):
         The approach to tied dissimilarities used.
     table : pandas.DataFrame
         One row per start: ``stress``, ``iterations``, ``reached_max_iter``, ``disparity``
-        (Procrustes disparity to the best solution) and ``agrees``.
+        (Procrustes disparity between the start's solution and the best one) and ``agrees``.
     notes : tuple of str
         Warnings in words.
     """
@@ -333,15 +333,12 @@ def nmds(
     best = int(np.argmin(stresses))  # first of equal minima
     x_best = runs[best][0]
 
-    disparity = np.full(n_starts, np.nan)
-    agrees = np.zeros(n_starts, dtype=bool)
+    disparity = np.zeros(n_starts)
     for i, run in enumerate(runs):
-        if i == best:
-            disparity[i], agrees[i] = 0.0, True
-            continue
-        if stresses[i] - stresses[best] <= AGREE_STRESS:
+        if i != best:
             disparity[i] = procrustes(x_best, run[0])[2]
-            agrees[i] = disparity[i] < AGREE_DISPARITY
+    agrees = (stresses - stresses[best] <= AGREE_STRESS) & (disparity < AGREE_DISPARITY)
+    agrees[best] = True
     n_agree = int(agrees.sum())
     converged = n_agree >= 2
 
