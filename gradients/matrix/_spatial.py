@@ -31,6 +31,7 @@ from scipy.spatial.distance import pdist, squareform
 from .._errors import InputError
 from .._validation import check_labels_match
 from ..distance import DistanceMatrix
+from ..ordination import pcoa
 
 __all__ = [
     "MoranSurrogates",
@@ -184,21 +185,18 @@ def moran_i(values: np.ndarray, w: np.ndarray) -> np.ndarray:
 def principal_coordinates(condensed: np.ndarray) -> tuple[np.ndarray, float]:
     """Principal coordinates of a distance matrix (Gower 1966) and its non-Euclidean share.
 
-    Returns ``(coordinates, negative_share)``: the coordinates on the axes with positive
-    eigenvalues (``u sqrt(lambda)``) and the sum of the absolute negative eigenvalues as a
-    fraction of the sum of the positive ones (0 for a Euclidean matrix).
+    A thin call to :func:`gradients.ordination.pcoa`. Returns ``(coordinates, negative_share)``:
+    the coordinates on the axes with positive eigenvalues and the sum of the magnitudes of the
+    negative eigenvalues as a fraction of the sum of the positive ones (0 when Euclidean).
     """
-    d = squareform(np.asarray(condensed, dtype=np.float64), checks=False)
-    g = -0.5 * d * d
-    g -= g.mean(axis=0, keepdims=True)
-    g -= g.mean(axis=1, keepdims=True)
-    vals, vecs = scipy.linalg.eigh((g + g.T) / 2.0)
-    top = float(np.max(np.abs(vals))) if vals.size else 0.0
-    keep = vals > 1e-10 * top
-    negative = vals < -1e-10 * top
-    pos_sum = float(vals[keep].sum())
-    share = float(-vals[negative].sum() / pos_sum) if pos_sum > 0 else 0.0
-    return vecs[:, keep] * np.sqrt(vals[keep]), share
+    values = np.asarray(condensed, dtype=np.float64)
+    m = values.size
+    n = int(np.rint((1 + np.sqrt(1 + 8 * m)) / 2))
+    result = pcoa(DistanceMatrix(values, range(n), validate=False))
+    eig = result.eigenvalues.to_numpy(dtype=np.float64)
+    positive = float(eig[eig > 0].sum())
+    share = float(-eig[eig < 0].sum() / positive) if positive > 0 else 0.0
+    return result.scores.to_numpy(dtype=np.float64), share
 
 
 @dataclass(frozen=True, eq=False)
