@@ -22,6 +22,7 @@ __all__ = [
     "TEXT",
     "ParsedColumn",
     "looks_like_decimal_comma",
+    "non_detect_hint",
     "parse_column",
 ]
 

@@ -18,7 +18,8 @@ import numpy as np
 import pandas as pd
 
 from .._errors import InputError, format_items
-from ._cells import CENSORED, MISSING, NUMBER, TEXT, non_detect_hint, parse_column
+from .._validation import check_choice
+from ._cells import CENSORED, MISSING, MISSING_TOKENS, NUMBER, TEXT, non_detect_hint, parse_column
 from ._censored import CENSORED_POLICIES, MIN_DETECTS_ROS, ros_impute
 from ._files import RawTable, read_file, table_from_frame
 from ._log import Decision
@@ -68,13 +69,6 @@ class _Options:
     constant: str
 
 
-def _choice(name: str, value: object, choices: Iterable[str]) -> str:
-    choices = tuple(choices)
-    if not isinstance(value, str) or value not in choices:
-        raise InputError(f"`{name}` must be one of {format_items(choices)}; got {value!r}.")
-    return value
-
-
 def _check_options(
     site_column: object,
     coordinates: object,
@@ -114,11 +108,11 @@ def _check_options(
         crs=crs,
         factors=facs,
         shared_sites_only=bool(shared_sites_only),
-        missing=_choice("missing", missing, MISSING_POLICIES),
-        censored=_choice("censored", censored, CENSORED_POLICIES),
-        empty_sites=_choice("empty_sites", empty_sites, EMPTY_SITE_POLICIES),
-        empty_taxa=_choice("empty_taxa", empty_taxa, EMPTY_TAXON_POLICIES),
-        constant=_choice("constant", constant, CONSTANT_POLICIES),
+        missing=check_choice("missing", missing, tuple(MISSING_POLICIES)),
+        censored=check_choice("censored", censored, tuple(CENSORED_POLICIES)),
+        empty_sites=check_choice("empty_sites", empty_sites, EMPTY_SITE_POLICIES),
+        empty_taxa=check_choice("empty_taxa", empty_taxa, EMPTY_TAXON_POLICIES),
+        constant=check_choice("constant", constant, CONSTANT_POLICIES),
     )
 
 
@@ -374,11 +368,8 @@ def _as_factor(series: pd.Series) -> pd.Series:
         labels = []
         for v in series.astype(object):
             label = _label(v)
-            labels.append(None if label is not None and label.lower() in _MISSING_LOWER else label)
+            labels.append(None if label is not None and label.lower() in MISSING_TOKENS else label)
     return pd.Series(pd.Categorical(labels), index=series.index, name=series.name)
-
-
-from ._cells import MISSING_TOKENS as _MISSING_LOWER  # noqa: E402
 
 
 def _parse_environment(table: _Table, opts: _Options
