@@ -123,3 +123,18 @@ def test_demo_end_to_end_is_quiet_off_a_terminal(tmp_path: Path,
     assert calls["reporter"] is not None and calls["reporter"].enabled is False
     captured = capsys.readouterr()
     assert captured.err == "" and "report.html" in captured.out
+
+
+def test_unknown_hypothesis_variable_is_named(tmp_path: Path,
+                                              capsys: pytest.CaptureFixture[str]) -> None:
+    assert main(["init", str(tmp_path / "p")]) == 0
+    project = tmp_path / "p" / "project.toml"
+    text = project.read_text(encoding="utf-8").replace('texture = ["sand", "silt", "clay"]',
+                                                       'texture = ["sand", "slit", "clay"]')
+    project.write_text(text, encoding="utf-8")
+    capsys.readouterr()
+    for command in ("check", "run"):
+        assert main([command, str(project)]) == 2
+        err = capsys.readouterr().err
+        assert "`hypotheses.texture` names 'slit'" in err, err
+    assert not (tmp_path / "p" / "report").exists()

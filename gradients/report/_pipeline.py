@@ -89,10 +89,15 @@ class Skip(Exception):
 
 
 def run_steps(ctx: Context, steps: list[tuple[str, str | None, Step]] | None = None) -> None:
-    """Run every registered step in order."""
-    for name, setting, func in steps if steps is not None else STEPS:
-        if setting is not None and not ctx.settings.get(setting, True):
-            continue
+    """Run every registered step in order (telling an installed progress reporter)."""
+    from ..permutation import current_reporter
+
+    todo = [s for s in (steps if steps is not None else STEPS)
+            if s[1] is None or ctx.settings.get(s[1], True)]
+    reporter = current_reporter()
+    for i, (name, _setting, func) in enumerate(todo):
+        if reporter is not None:
+            reporter("running analyses", i, len(todo))
         start = time.perf_counter()
         try:
             func(ctx)
@@ -108,3 +113,5 @@ def run_steps(ctx: Context, steps: list[tuple[str, str | None, Step]] | None = N
             ctx.skipped.append((name, str(exc)))
         finally:
             ctx.timings[name] = round(time.perf_counter() - start, 3)
+    if reporter is not None:
+        reporter("running analyses", len(todo), len(todo))

@@ -207,12 +207,19 @@ def write_report(outcome: Outcome, out: str | Path, *, force: bool = False) -> P
         for name, frame in tables.items():
             write_csv(frame, folder.path(f"tables/{table_files[name]}.csv"))
         write_workbook(tables, folder.path("tables.xlsx"))
+        from ..permutation import current_reporter
+
+        reporter = current_reporter()
         svg: dict[str, bytes] = {}
         for s in outcome.sections:
             for name, fig in s.figures.items():
+                if reporter is not None:
+                    reporter("writing figures", len(svg), len(figure_files))
                 base = figure_files[name]
                 _save_figure(fig, folder.path(f"figures/{base}"), figures_module)
                 svg[name] = folder.path(f"figures/{base}.svg").read_bytes()
+        if reporter is not None:
+            reporter("writing figures", len(figure_files), len(figure_files))
         if has_gis:
             _write_gis(outcome, folder.path("sites.gpkg"))
         folder.path("methods.md").write_text("# Methods\n\n" + outcome.methods, encoding="utf-8")
