@@ -483,6 +483,7 @@ def _permutation_statistic(x, penalty, y, family, criterion, grid, smoothing, d0
     if family == "gaussian":
         coef_map, lam, valid = demmler_reinsch_svd(x, penalty)
         rows = np.ascontiguousarray((x @ coef_map[0]).T)  # B', orthonormal rows (p, n)
+        y = y - y.mean()  # the fit is shift-equivariant; centring avoids cancellation in RSS
         yy = float(y @ y)
         lam_grid = grid if smoothing is None else np.array([float(smoothing)])
         rank = int(np.linalg.matrix_rank(penalty))

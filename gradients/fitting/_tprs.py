@@ -296,6 +296,7 @@ def pirls(
     refine: bool = False,
     max_iter: int = 60,
     tol: float = 1e-8,
+    _centred: bool = False,
 ) -> PirlsFit:
     """Penalised iteratively re-weighted least squares, batched over data sets ``y`` (k, n).
 
@@ -307,6 +308,19 @@ def pirls(
     y = np.atleast_2d(np.asarray(y, dtype=np.float64))
     k, n = y.shape
     p = x.shape[1]
+    ones = np.flatnonzero(np.all(x == 1.0, axis=0))
+    if family == "gaussian" and ones.size and not _centred:
+        # The Gaussian fit is shift-equivariant (the unpenalised constant absorbs a shift):
+        # fit the centred data, so sums of squares do not cancel, and shift back.
+        shift = y.mean(axis=1)
+        out = pirls(x, penalty, y - shift[:, None], family, method=method, grid=grid,
+                    smoothing=smoothing, refine=refine, max_iter=max_iter, tol=tol,
+                    _centred=True)
+        beta = out.beta.copy()
+        beta[:, ones[0]] += shift
+        return PirlsFit(beta=beta, mu=out.mu + shift[:, None], smoothing=out.smoothing,
+                        edf=out.edf, deviance=out.deviance, converged=out.converged,
+                        iterations=out.iterations)
     penalty_rank = int(np.linalg.matrix_rank(penalty)) if penalty.any() else 0
     known_scale = family != "gaussian"
     if family == "poisson":

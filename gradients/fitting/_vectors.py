@@ -161,8 +161,10 @@ def _statistic_factory(x: np.ndarray, y: np.ndarray, w: np.ndarray | None):
         # rows: d fitted directions and the weighted-mean direction, all premultiplied by sqrt(w)
         rows = np.ascontiguousarray(np.vstack([(sw[:, None] * qc).T, (sw * q0)[None, :]]))
         d = qc.shape[1]
-        scale = np.abs(ys).max(axis=0)
-        ysc = ys / scale  # scaled for the sum of squares (r2 is scale-free)
+        # r2 is unchanged by shifting and scaling a variable (the permuted copy shifts alike):
+        # centre and scale first so that the weighted total sum of squares does not cancel.
+        shifted = ys - ys.mean(axis=0)
+        ysc = shifted / np.abs(shifted).max(axis=0)
 
         def statistic_w(orders: np.ndarray) -> np.ndarray:
             proj = project_batch(orders, rows, ysc)  # (k, d + 1, m)
