@@ -253,3 +253,16 @@ def test_reml_choice_minimises_directly_computed_restricted_likelihood():
     best = reml(fit.smoothing)
     for factor in (0.5, 0.8, 1.25, 2.0):
         assert best <= reml(fit.smoothing * factor) + 1e-9
+
+
+def test_gaussian_surface_is_shift_equivariant():
+    # Theory: the unpenalised constant absorbs a shift, so y + c fits as f + c with the same
+    # smoothing, edf and deviance explained (large offsets must not cost precision).
+    sc, rng = _cloud(n=50, seed=14)
+    y = pd.Series(np.sin(sc.axis1) + rng.normal(0, 0.3, 50), index=sc.index, name="y")
+    a = fit_surface(sc, y, n_resamples=20, rng=1)
+    b = fit_surface(sc, y + 1e5, n_resamples=20, rng=1)
+    assert b.edf == pytest.approx(a.edf, abs=1e-6)
+    assert b.deviance_explained == pytest.approx(a.deviance_explained, abs=1e-8)
+    np.testing.assert_allclose(b.fitted - 1e5, a.fitted, atol=1e-6)
+    np.testing.assert_allclose(b.null_distribution, a.null_distribution, atol=1e-8)

@@ -240,3 +240,16 @@ def test_accepts_an_ordination_result_and_r2_is_rotation_invariant():
     fit = fit_vectors(result, env, n_resamples=9, rng=0)
     ols = sm.OLS(env["v"].to_numpy(), sm.add_constant(pts)).fit()
     assert fit.table.loc["v", "r2"] == pytest.approx(ols.rsquared, abs=1e-10)
+
+
+def test_shift_and_scale_invariance_with_weights():
+    # Theory: r2 is unchanged by y -> a + b y (b != 0), permuted values shift alike, so the
+    # whole null distribution is unchanged; a large offset (as for conductivity in uS/cm)
+    # must not cost precision.
+    sc = _scores(40)
+    env = _environment(sc)[["pH"]]
+    w = np.random.default_rng(3).uniform(0.5, 2, 40)
+    base = fit_vectors(sc, env, weights=w, n_resamples=99, rng=5)
+    moved = fit_vectors(sc, 1e6 + 250.0 * env, weights=w, n_resamples=99, rng=5)
+    assert moved.table.loc["pH", "r2"] == pytest.approx(base.table.loc["pH", "r2"], abs=1e-10)
+    np.testing.assert_allclose(moved.null_distribution, base.null_distribution, atol=1e-9)
