@@ -195,39 +195,56 @@ def _stress_grad(x: np.ndarray, first: np.ndarray, second: np.ndarray, perm: np.
                  blocks: np.ndarray, join: np.ndarray, primary: bool, grad: np.ndarray,
                  ds: np.ndarray, fs: np.ndarray, total: np.ndarray, count: np.ndarray,
                  start: np.ndarray) -> float:
+    """Stress-1 of ``x``; its gradient is written to ``grad``.
+
+    With ``S**2 = raw / sq`` (raw = sum (d - fitted)**2, sq = sum d**2) and the fitted values
+    held fixed (they are the projection onto the monotone cone, so this is the gradient wherever
+    the order of distances inside tie blocks does not change):
+
+    ``dS/dd_k = ((d_k - fitted_k) - S**2 d_k) / (S sq)`` and ``dd_k/dx_a = (x_a - x_b) / d_k``.
+
+    Summed over the pairs of site ``a`` the second term is ``S**2 (n x_a - sum_b x_b)``, so one
+    pass accumulates ``raw``, ``sq`` and ``sum (d_k - fitted_k) / d_k (x_a - x_b)`` together.
+    """
     _fit_sorted(x, first, second, perm, blocks, join, primary, ds, fs, total, count, start)
-    m = ds.shape[0]
-    raw = 0.0
-    sq = 0.0
-    for k in range(m):
-        r = ds[k] - fs[k]
-        raw += r * r
-        sq += ds[k] * ds[k]
     n, n_dim = x.shape
     for a in range(n):
         for c in range(n_dim):
             grad[a, c] = 0.0
-    if sq <= 0.0:
-        return 1.0
-    if raw <= 0.0:
-        return 0.0
-    s2 = raw / sq
-    s = np.sqrt(s2)
-    # S = sqrt(raw / sq): dS/dd_k = ((d_k - fitted_k) - S^2 d_k) / (S sq), the fitted values
-    # held fixed (they are the projection onto the monotone cone, so this is the gradient
-    # wherever the order of distances inside tie blocks does not change);
-    # dd_k/dx_a = (x_a - x_b) / d_k
-    scale = 1.0 / (s * sq)
-    for k in range(m):
+    raw = 0.0
+    sq = 0.0
+    for k in range(ds.shape[0]):
         dk = ds[k]
+        r = dk - fs[k]
+        raw += r * r
+        sq += dk * dk
         if dk > 0.0:
-            w = scale * ((dk - fs[k]) - s2 * dk) / dk
+            w = r / dk
             a = first[k]
             b = second[k]
             for c in range(n_dim):
                 g = w * (x[a, c] - x[b, c])
                 grad[a, c] += g
                 grad[b, c] -= g
+    if sq <= 0.0:
+        for a in range(n):
+            for c in range(n_dim):
+                grad[a, c] = 0.0
+        return 1.0
+    if raw <= 0.0:
+        for a in range(n):
+            for c in range(n_dim):
+                grad[a, c] = 0.0
+        return 0.0
+    s2 = raw / sq
+    s = np.sqrt(s2)
+    scale = 1.0 / (s * sq)
+    for c in range(n_dim):
+        col = 0.0
+        for a in range(n):
+            col += x[a, c]
+        for a in range(n):
+            grad[a, c] = scale * (grad[a, c] - s2 * (n * x[a, c] - col))
     return s
 
 
