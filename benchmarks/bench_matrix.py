@@ -23,14 +23,14 @@ import os
 
 os.environ.setdefault("OPENBLAS_NUM_THREADS", "1")
 
-import platform  # noqa: E402
-import time  # noqa: E402
+import platform
+import time
 
-import numpy as np  # noqa: E402
-from scipy.spatial.distance import pdist  # noqa: E402
+import numpy as np
+from scipy.spatial.distance import pdist
 
-from gradients.distance import DistanceMatrix  # noqa: E402
-from gradients.matrix import mantel  # noqa: E402
+from gradients.distance import DistanceMatrix
+from gradients.matrix import mantel
 
 N_SITES = 1000
 N_PERM = 9999
