@@ -177,7 +177,7 @@ def render_html(outcome: Outcome, figures: dict[str, bytes], files: dict[str, st
         "<code>tables.xlsx</code>; text cells that a spreadsheet would read as a formula start "
         "with a single quote. Every figure is in <code>figures/</code> as PNG and SVG. "
         "<code>run.json</code> records software versions, input checksums, every parameter and "
-        f'the timings.</p><ul class="log">{file_items}</ul></section>'
+        f'the timings.</p><ul class="files">{file_items}</ul></section>'
     )
     caution = (
         '<div class="caution"><strong>Caution.</strong> Permutation p-values are not corrected '
