@@ -10,6 +10,7 @@ import numpy as np
 import pandas as pd
 import scipy.optimize
 from scipy.spatial import procrustes
+from scipy.spatial.distance import pdist
 
 from .._errors import InputError
 from .._result import ResultMixin
@@ -344,7 +345,7 @@ def nmds(
 
     # final configuration: centred, principal axes, scaled, oriented
     x = _principal_axes(x_best)
-    rms_d = np.sqrt(np.mean(np.square(_pair_distances(x))))
+    rms_d = np.sqrt(np.mean(np.square(pdist(x))))
     rms_delta = np.sqrt(np.mean(delta**2))
     if rms_d > 0:
         x = x * (rms_delta / rms_d)
@@ -402,9 +403,3 @@ def nmds(
         table=table,
         notes=tuple(notes),
     )
-
-
-def _pair_distances(x: np.ndarray) -> np.ndarray:
-    from scipy.spatial.distance import pdist
-
-    return pdist(x)

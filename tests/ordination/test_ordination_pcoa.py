@@ -122,6 +122,9 @@ def test_lingoes_correction():
     shifted = np.sort(np.delete(original, trivial) + c)[::-1]
     np.testing.assert_allclose(_gower_eigenvalues(corrected)[:-1], shifted, atol=1e-10)
     assert any("Lingoes" in note for note in res.notes)
+    from gradients.ordination._pcoa import lingoes_constant
+
+    assert lingoes_constant(dm.square()) == pytest.approx(c, rel=1e-10)
 
 
 def test_cailliez_correction():
