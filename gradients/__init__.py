@@ -23,6 +23,8 @@ _EXPORTS: dict[str, str] = {
     "Survey": "data",
     "read_survey": "data",
     "demo_survey": "data",
+    "simulate_survey": "data",
+    "Decision": "data",
     # distance
     "DistanceMatrix": "distance",
     "dissimilarity": "distance",
@@ -30,10 +32,16 @@ _EXPORTS: dict[str, str] = {
     "geographic_distance": "distance",
     "transform_community": "distance",
     "transform_environment": "distance",
+    "gower_distance": "distance",
+    "extend_dissimilarity": "distance",
+    "TransformResult": "distance",
     # ordination
     "pcoa": "ordination",
     "nmds": "ordination",
     "pca": "ordination",
+    "as_scores": "ordination",
+    "taxon_scores": "ordination",
+    "stress_verdict": "ordination",
     # permutation engine
     "permutation_plan": "permutation",
     "permutation_test": "permutation",
