@@ -119,7 +119,7 @@ def test_spatial_null_messages():
     with pytest.raises(InputError, match=r"one row per site \(10\)"):
         mantel(x, y, n_resamples=9, spatial_null=xy[:5])
     coords = pd.DataFrame(xy, index=[*lab[:9], "elsewhere"])
-    with pytest.raises(InputError, match="'k9'.*'elsewhere'"):
+    with pytest.raises(InputError, match=r"'k9'.*'elsewhere'"):
         mantel(x, y, n_resamples=9, spatial_null=coords)
     with pytest.raises(InputError, match="All sites share one location"):
         mantel(x, y, n_resamples=9, spatial_null=np.zeros((10, 2)))
