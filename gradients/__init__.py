@@ -55,6 +55,11 @@ _EXPORTS: dict[str, str] = {
     "mantel_correlogram": "matrix",
     "matrix_regression": "matrix",
     "distance_decay": "matrix",
+    # report
+    "load_project": "report",
+    "init_project": "report",
+    "run_project": "report",
+    "run_demo": "report",
 }
 
 __all__ = ["InputError", "__version__", *_EXPORTS]
