@@ -317,7 +317,9 @@ def _spatial_null(
         notes.append(
             f"x is not Euclidean (negative eigenvalues {100 * share:.2g}% of the positive ones): "
             "the spatial null uses its Euclidean part, the principal coordinates on positive "
-            f"axes, and compares against the statistic computed there ({observed:.4f})."
+            f"axes, and compares against the statistic computed there ({observed:.4f}). With "
+            "large negative eigenvalues consider testing sqrt(x), Euclidean for many "
+            "ecological dissimilarities."
         )
     return observed, result, notes
 
