@@ -4,6 +4,7 @@
 from __future__ import annotations
 
 import numpy as np
+import pandas as pd
 import pytest
 from scipy import stats
 from scipy.spatial.distance import pdist, squareform
@@ -167,3 +168,14 @@ def test_decay_messages():
         distance_decay(d, geo, model="linear")
     with pytest.raises(InputError, match="`offset` must be a positive number"):
         distance_decay(d, geo, offset=-1.0)
+
+
+def test_spearman_correlogram_is_the_pearson_correlogram_of_ranks():
+    # Spearman: d's entries ranked once (scipy.stats.rankdata), then the Pearson statistic.
+    d, geo = _field(20, 5)
+    ranked = DistanceMatrix(stats.rankdata(d.condensed), d.labels)
+    a = mantel_correlogram(d, geo, method="spearman", classes=4, n_resamples=99, rng=2)
+    b = mantel_correlogram(ranked, geo, classes=4, n_resamples=99, rng=2)
+    pd.testing.assert_frame_equal(a.table, b.table)
+    with pytest.raises(InputError, match="`method` must be one of 'pearson', 'spearman'"):
+        mantel_correlogram(d, geo, method="kendall")

@@ -4,6 +4,7 @@ OLS and brute-force permutation."""
 from __future__ import annotations
 
 import numpy as np
+import pandas as pd
 import pytest
 import statsmodels.api as sm
 from scipy import stats
@@ -176,3 +177,21 @@ def test_regression_messages():
         matrix_regression(x, {"a": y, "b": DistanceMatrix(3 * y.condensed, y.labels)})
     with pytest.raises(InputError, match=r"Predictor\(s\) c have the same value"):
         matrix_regression(x, {"a": y, "c": DistanceMatrix(np.ones(45), y.labels)})
+
+
+def test_early_stop_two_sided_partial_needs_a_known_centre():
+    x, y, z, _ = _matrices(10, 1)
+    with pytest.raises(InputError, match="`early_stop` with alternative='two-sided' needs a "
+                                         "known null mean"):
+        partial_mantel(x, y, z, alternative="two-sided", early_stop=5, n_resamples=99)
+
+
+def test_inputs_come_back_unchanged():
+    # STYLE.md 10: analyses must not modify their inputs.
+    x, y, z, _ = _matrices(10, 2)
+    frames = [m.to_frame() for m in (x, y, z)]
+    copies = [f.copy() for f in frames]
+    partial_mantel(frames[0], frames[1], frames[2], permute="residuals", n_resamples=19, rng=0)
+    matrix_regression(frames[0], {"a": frames[1], "b": frames[2]}, n_resamples=19, rng=0)
+    for f, c in zip(frames, copies, strict=True):
+        pd.testing.assert_frame_equal(f, c)
