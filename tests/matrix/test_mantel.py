@@ -227,3 +227,15 @@ def test_early_stop_gives_besag_clifford_pvalue():
     res = mantel(x, y, n_resamples=9999, rng=3, early_stop=10)
     assert res.stopped_early
     assert res.pvalue == pytest.approx(10 / res.n_resamples)
+
+
+def test_a_ready_plan_can_be_passed_as_scheme():
+    # A toroidal design needs the grid shape: pass the plan itself (engine, 3 x 4 grid: 12
+    # distinct shifts, theory), and the test is exact over those 12.
+    x, y = _pair(12, 9)
+    plan = permutation_plan(12, "toroidal", shape=(3, 4), n_resamples=999, rng=0)
+    res = mantel(x, y, scheme=plan)
+    assert res.exact and res.n_resamples == 12 and res.scheme == "toroidal"
+    assert (res.pvalue * 12) == pytest.approx(round(res.pvalue * 12))
+    with pytest.raises(InputError, match="plan given as `scheme` is for 12 sites"):
+        mantel(*_pair(10, 1), scheme=plan)
