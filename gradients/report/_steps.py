@@ -8,6 +8,8 @@ the arrangement of those results into tables.
 
 from __future__ import annotations
 
+from typing import Any
+
 import numpy as np
 import pandas as pd
 
@@ -391,6 +393,21 @@ def _spatial_kwargs(ctx: Context) -> dict[str, object]:
     return {"spatial_null": geo, "n_surrogates": ctx.n_resamples}
 
 
+def _attributed_notes(results: dict[str, Any]) -> list[str]:
+    """Notes of several results, each said once, prefixed by the names it applies to.
+
+    A note that every result carries is given without a prefix.
+    """
+    owners: dict[str, list[str]] = {}
+    for name, res in results.items():
+        for note in res.notes:
+            names = owners.setdefault(note, [])
+            if name not in names:
+                names.append(name)
+    return [note if len(names) == len(results) else f"{', '.join(names)}: {note}"
+            for note, names in owners.items()]
+
+
 @step("mantel", "analyses.mantel")
 def mantel_step(ctx: Context) -> None:
     from ..matrix import mantel
@@ -428,8 +445,7 @@ def mantel_step(ctx: Context) -> None:
             "spatial autocorrelation gives ordinary Mantel tests.")
     sec.tables["mantel"] = table
     sec.shown.append("mantel")
-    for res in results.values():
-        sec.notes.extend(n for n in res.notes if n not in sec.notes)
+    sec.notes.extend(_attributed_notes(results))
     ctx.sections.append(sec)
     ctx.methods.append(
         "Mantel tests (Mantel 1967; Pearson r, sites permuted) of community dissimilarity "
@@ -474,8 +490,7 @@ def partial_mantel_step(ctx: Context) -> None:
         "Legendre (2000) recommends for partial Mantel tests.")
     sec.tables["partial_mantel"] = table
     sec.shown.append("partial_mantel")
-    for res in results.values():
-        sec.notes.extend(n for n in res.notes if n not in sec.notes)
+    sec.notes.extend(_attributed_notes(results))
     ctx.sections.append(sec)
     ctx.methods.append(
         "Partial Mantel tests (Smouse, Long & Sokal 1986) of each hypothesis controlling for "
