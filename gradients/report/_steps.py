@@ -887,7 +887,7 @@ def surfaces_step(ctx: Context) -> None:
             raise InputError(f"`environment.surfaces` names {v!r}, which is not a numeric "
                              "variable of the environmental table.", columns=[v])
         fit = fit_surface(scores, env[column], n_resamples=ctx.n_resamples,
-                          rng=ctx.rng(f"surface:{v}"), strata=_strata(ctx))
+                          rng=ctx.rng(f"surface:{v}"), strata=_strata(ctx), grid_size=150)
         fits[column] = fit
         rows.append({"variable": column, "edf": fit.edf,
                      "deviance_explained": fit.deviance_explained, "smoothing": fit.smoothing,
