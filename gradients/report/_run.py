@@ -59,6 +59,35 @@ def read_project_survey(project: Project) -> Any:
     from ..data import read_survey
 
     s = project.settings
+    try:
+        return _read(read_survey, s)
+    except InputError as exc:
+        raise InputError(_project_words(str(exc)), file=exc.file, sites=exc.sites,
+                         columns=exc.columns) from None
+
+
+#: The data stage's advice names Python options; in a project they are keys of [inputs].
+_PROJECT_KEYS = {
+    "shared_sites_only=True": '[inputs] unmatched_sites = "keep-shared"',
+    "missing='drop-sites'": '[inputs] missing = "drop-sites"',
+    "missing='drop-variables'": '[inputs] missing = "drop-variables"',
+    "empty_sites='drop'": '[inputs] empty_sites = "drop"',
+    "constant='drop'": '[inputs] constant = "drop"',
+    "censored='ros'": '[inputs] below_detection = "ros"',
+    "censored='half-limit'": '[inputs] below_detection = "half-limit"',
+    "censored='limit'": '[inputs] below_detection = "limit"',
+    "censored='zero'": '[inputs] below_detection = "zero"',
+}
+
+
+def _project_words(message: str) -> str:
+    """Say the data stage's advice in the project file's keys."""
+    for option, key in _PROJECT_KEYS.items():
+        message = message.replace(f"`{option}`", key).replace(option, key)
+    return message
+
+
+def _read(read_survey: Any, s: dict[str, Any]) -> Any:
     return read_survey(
         s["inputs.community"], s["inputs.environment"], s["inputs.locations"],
         site_column=s["inputs.site_column"],
