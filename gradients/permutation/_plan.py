@@ -18,6 +18,7 @@ import pandas as pd
 
 from .._errors import InputError, format_items
 from .._validation import check_choice, check_n_resamples
+from ._shuffle import shuffle_segments
 
 __all__ = ["SCHEMES", "PermutationPlan", "custom_plan", "permutation_plan", "seed_sequence"]
 
@@ -93,10 +94,9 @@ class PermutationPlan:
         if self._enumerated is not None:
             return self._enumerated[start : start + k]
         seed = _child(self._seed, i)
-        rng = np.random.default_rng(seed)
         if self._draw is not None:
-            return self._draw(rng, k)
-        return _DRAWERS[self.scheme](self, rng, k)
+            return self._draw(np.random.default_rng(seed), k)
+        return _DRAWERS[self.scheme](self, seed, k)
 
     def batches(self) -> Iterator[np.ndarray]:
         """All batches in order."""
@@ -122,21 +122,23 @@ def _child(seed: np.random.SeedSequence, i: int) -> np.random.SeedSequence:
 
 
 # --------------------------------------------------------------------------- drawers
-def _draw_free(plan: PermutationPlan, rng: np.random.Generator, k: int) -> np.ndarray:
-    base = np.broadcast_to(np.arange(plan.n_sites, dtype=np.intp), (k, plan.n_sites))
-    return rng.permuted(base, axis=1)
+def _batch_key(seed: np.random.SeedSequence) -> int:
+    return int(seed.generate_state(1, np.uint64)[0])
 
 
-def _draw_strata(plan: PermutationPlan, rng: np.random.Generator, k: int) -> np.ndarray:
-    out = np.empty((k, plan.n_sites), dtype=np.intp)
-    for members in plan._groups:
-        m = members.size
-        local = rng.permuted(np.broadcast_to(np.arange(m, dtype=np.intp), (k, m)), axis=1)
-        out[:, members] = members[local]
-    return out
+def _draw_free(plan: PermutationPlan, seed: np.random.SeedSequence, k: int) -> np.ndarray:
+    n = plan.n_sites
+    return shuffle_segments(_batch_key(seed), k, n, np.arange(n), np.array([0, n]))
 
 
-def _draw_cyclic(plan: PermutationPlan, rng: np.random.Generator, k: int) -> np.ndarray:
+def _draw_strata(plan: PermutationPlan, seed: np.random.SeedSequence, k: int) -> np.ndarray:
+    members = np.concatenate(plan._groups)
+    bounds = np.concatenate([[0], np.cumsum([g.size for g in plan._groups])])
+    return shuffle_segments(_batch_key(seed), k, plan.n_sites, members, bounds)
+
+
+def _draw_cyclic(plan: PermutationPlan, seed: np.random.SeedSequence, k: int) -> np.ndarray:
+    rng = np.random.default_rng(seed)
     out = np.empty((k, plan.n_sites), dtype=np.intp)
     for members in plan._groups:
         m = members.size
@@ -145,7 +147,8 @@ def _draw_cyclic(plan: PermutationPlan, rng: np.random.Generator, k: int) -> np.
     return out
 
 
-def _draw_toroidal(plan: PermutationPlan, rng: np.random.Generator, k: int) -> np.ndarray:
+def _draw_toroidal(plan: PermutationPlan, seed: np.random.SeedSequence, k: int) -> np.ndarray:
+    rng = np.random.default_rng(seed)
     rows, cols = plan._shape  # type: ignore[misc]
     dr = rng.integers(0, rows, size=k)
     dc = rng.integers(0, cols, size=k)
@@ -158,7 +161,8 @@ def _torus_orders(rows: int, cols: int, dr: np.ndarray, dc: np.ndarray) -> np.nd
     return (r * cols + c).reshape(len(dr), rows * cols).astype(np.intp)
 
 
-def _draw_blocks(plan: PermutationPlan, rng: np.random.Generator, k: int) -> np.ndarray:
+def _draw_blocks(plan: PermutationPlan, seed: np.random.SeedSequence, k: int) -> np.ndarray:
+    rng = np.random.default_rng(seed)
     blocks = np.stack(plan._groups)  # (n_blocks, block_size), sites in block order
     nb = blocks.shape[0]
     order = rng.permuted(np.broadcast_to(np.arange(nb), (k, nb)), axis=1)
@@ -167,7 +171,7 @@ def _draw_blocks(plan: PermutationPlan, rng: np.random.Generator, k: int) -> np.
     return out
 
 
-_DRAWERS: dict[str, Callable[[PermutationPlan, np.random.Generator, int], np.ndarray]] = {
+_DRAWERS: dict[str, Callable[[PermutationPlan, np.random.SeedSequence, int], np.ndarray]] = {
     "free": _draw_free,
     "strata": _draw_strata,
     "cyclic": _draw_cyclic,

@@ -132,10 +132,15 @@ def test_batched_permutation_statistic_equals_refits():
     fit = fit_surface(sc, y, n_resamples=30, rng=3)
     orders = permutation_plan(50, n_resamples=30, rng=3).batch(0)
     for b in (0, 11, 29):
-        refit = fit_surface(sc, pd.Series(y.to_numpy()[orders[b]], index=sc.index, name="y"),
-                            n_resamples=0)
-        assert fit.null_distribution[b] == pytest.approx(refit.deviance_explained, abs=2e-3)
-    assert fit.statistic == pytest.approx(fit.deviance_explained, abs=2e-3)
+        permuted = pd.Series(y.to_numpy()[orders[b]], index=sc.index, name="y")
+        # a fresh test of the permuted data selects lambda on the same grid: equal to rounding
+        refit = fit_surface(sc, permuted, n_resamples=9, rng=0)
+        assert fit.null_distribution[b] == pytest.approx(refit.statistic, abs=1e-10)
+        # the reported fit refines lambda between grid points (one grid step is ~1.3x in
+        # lambda), which moves deviance explained by up to about 0.01 on a flat GCV curve
+        refined = fit_surface(sc, permuted, n_resamples=0)
+        assert fit.null_distribution[b] == pytest.approx(refined.deviance_explained, abs=0.02)
+    assert fit.statistic == pytest.approx(fit.deviance_explained, abs=0.02)
 
 
 def test_poisson_unpenalised_limit_matches_statsmodels_glm():

@@ -222,3 +222,23 @@ def test_progress_reporter_sees_every_batch():
 def test_bad_arguments_are_named(call, message):
     with pytest.raises(InputError, match=message):
         call()
+
+
+def test_random_orders_are_uniform_over_all_permutations():
+    # Theory: Fisher-Yates with unbiased bounded integers makes every order equally likely;
+    # chi-square goodness of fit over the 4! = 24 orders (scipy.stats.chisquare).
+    plan = permutation_plan(4, n_resamples=48_000, rng=11, exact=False)
+    orders = np.concatenate(list(plan.batches()))
+    _, counts = np.unique(orders, axis=0, return_counts=True)
+    assert len(counts) == 24
+    assert stats.chisquare(counts).pvalue > 0.001
+    # within strata: each of the 3! x 2! = 12 arrangements equally likely
+    plan = permutation_plan(5, strata=[0, 1, 0, 1, 0], n_resamples=24_000, rng=12, exact=False)
+    orders = np.concatenate(list(plan.batches()))
+    _, counts = np.unique(orders, axis=0, return_counts=True)
+    assert len(counts) == 12
+    assert stats.chisquare(counts).pvalue > 0.001
+    # each site is equally likely to take each position (first moment, theory)
+    plan = permutation_plan(30, n_resamples=30_000, rng=13)
+    orders = np.concatenate(list(plan.batches()))
+    assert np.abs(orders.mean(axis=0) - 14.5).max() < 0.25  # sd of mean ~ 8.7/sqrt(3e4) = 0.05
