@@ -227,6 +227,10 @@ def distance_decay(
     if n_used < 3 or np.ptp(xs[valid]) <= 0:
         raise InputError(f"Only {n_used} usable pair(s) of sites (or a single distance): no "
                          "decay can be fitted. Check for zero similarities, or pass `offset`.")
+    if np.ptp(ys[valid]) <= 0:
+        raise InputError(
+            f"`d` gives the same similarity for every pair of sites used ({n_used} pairs): "
+            "there is no decay to fit. Check that the right matrix was passed.")
     w = valid.astype(np.float64)
     sums = [np.sum(w), np.sum(w * xs), np.sum(w * ys), np.sum(w * xs * xs),
             np.sum(w * xs * ys)]

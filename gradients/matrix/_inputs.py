@@ -175,9 +175,17 @@ def build_plan(
 
 
 def align_strata(strata: object, labels: pd.Index) -> object:
-    """Strata given as a labelled Series are put in site order; other sequences are positional."""
+    """Strata given as a labelled Series are put in site order; other sequences are positional.
+
+    A Series whose index holds exactly the sites' labels is matched by label, whatever the
+    index type (integer site IDs often come as a RangeIndex); a Series with a default
+    RangeIndex that is not the sites' labels is taken in site order.
+    """
     if strata is None:
         return None
+    if isinstance(strata, pd.Series) and len(strata) == len(labels) \
+            and set(strata.index) == set(labels):
+        return strata.loc[labels].to_numpy()
     if isinstance(strata, pd.Series) and not isinstance(strata.index, pd.RangeIndex):
         check_labels_match(labels, strata.index, left_name="the matrices",
                            right_name="`strata`",

@@ -512,8 +512,13 @@ class _Residualiser:
         q, r = np.linalg.qr(zc)
         diag = np.abs(np.diag(r))
         scale = np.sqrt(np.sum(zc * zc, axis=0))
-        if np.any(diag <= 1e-10 * np.maximum(scale, 1e-300)):
-            bad = [names[i] for i in np.flatnonzero(diag <= 1e-10 * np.maximum(scale, 1e-300))]
+        # A constant column centres to rounding noise (the mean of m copies of 0.1 is not
+        # 0.1), whose QR pivot is not small relative to itself: compare with its magnitude.
+        size = np.sqrt(controls.shape[0]) * np.max(np.abs(controls), axis=0)
+        flat = scale <= 1e-12 * size
+        collinear = flat | (diag <= 1e-10 * np.maximum(scale, 1e-300))
+        if np.any(collinear):
+            bad = [names[i] for i in np.flatnonzero(collinear)]
             raise InputError(
                 f"The control matrices are collinear (or constant): {', '.join(bad)} adds "
                 "nothing to the others. Drop it from `z`.", columns=bad)

@@ -101,6 +101,8 @@ def _distances(locations: object, labels: pd.Index) -> np.ndarray:
 def _aligned(d: DistanceMatrix, labels: pd.Index) -> DistanceMatrix:
     if d.labels.equals(labels):
         return d
+    if len(d.labels) == len(labels) and set(d.labels) == set(labels):
+        return d.subset(labels)  # the same sites in another order: match by label
     if isinstance(d.labels, pd.RangeIndex) and len(d.labels) == len(labels):
         return d  # positional
     check_labels_match(labels, d.labels, left_name="the matrices", right_name="`spatial_null`",
