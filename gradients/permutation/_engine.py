@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import contextlib
 import itertools
 import numbers
 from collections.abc import Callable
@@ -161,6 +162,30 @@ def permutation_test(
         if reporter is not None:
             reporter(task, done, nb)
 
+    with _one_blas_thread():
+        return _run(statistic, plan, obs_vec, scalar, alternative, center, early_stop,
+                    n_jobs, backend, note)
+
+
+def _one_blas_thread() -> contextlib.AbstractContextManager[object]:
+    """Hold BLAS to one thread while batches are evaluated.
+
+    Batched statistics are many mid-sized products; a multi-threaded BLAS gains little on them
+    and its spinning threads compete with the engine's own parallelism (compiled drawing and
+    kernels on every core, or several workers), which on a small machine makes runs several
+    times slower. Parallel speed comes from ``n_jobs`` and the compiled kernels instead.
+    """
+    try:
+        from threadpoolctl import threadpool_limits
+    except ImportError:  # pragma: no cover - a declared dependency
+        return contextlib.nullcontext()
+    return threadpool_limits(limits=1, user_api="blas")
+
+
+def _run(statistic: Statistic, plan: PermutationPlan, obs_vec: np.ndarray, scalar: bool,
+         alternative: str, center: float | np.ndarray | None, early_stop: int | None,
+         n_jobs: int, backend: str, note: Callable[[int], None]) -> PermutationResult:
+    nb = plan.n_batches
     stopped = np.zeros(obs_vec.size, dtype=bool)
     used = np.full(obs_vec.size, plan.size, dtype=np.int64)
     counts_at_stop = np.zeros(obs_vec.size, dtype=np.int64)
