@@ -297,8 +297,9 @@ def fit_surface(
     smoothing : float, optional
         Hold lambda fixed instead of selecting it (in permutations as well).
     basis_size : int, optional
-        Rank ``k`` of the thin plate basis (default 30, or the number of distinct sites if
-        fewer, which gives the full thin plate spline). At least 5.
+        Rank ``k`` of the thin plate basis (default 30, or ``n - 3`` for fewer than 33 sites,
+        so that residual degrees of freedom remain; see Notes). At least 5. A value of at
+        least the number of distinct sites gives the full thin plate spline.
     grid_size : int, default 50
         Points per side of the prediction grid over the sites' bounding box.
     missing : {'error', 'complete'}, default 'error'
@@ -319,6 +320,12 @@ def fit_surface(
     approximate one) exceeds 0.05; otherwise a straight vector would do when ``edf < 2.5`` or
     the plane's GCV score ``n D / (n - 3)^2`` is within 1 % of the surface's ``n D / (n -
     edf - 1)^2``; otherwise the response is curved.
+
+    With a full basis (``k`` equal to the number of sites) no residual degrees of freedom
+    remain, so ``n - tr(A)`` and the residual sum of squares vanish together as lambda -> 0:
+    the GCV score (and the REML score) then has a finite limit at interpolation and, on small
+    noisy data sets, often chooses it (edf ``n - 1``, deviance explained 1). The default rank
+    is therefore at most ``n - 3``; a larger ``basis_size`` is used as given.
 
     The permutation test re-selects lambda for every permuted data set on a log-spaced grid of
     120 values (the observed statistic uses the same grid). For the Gaussian family the design
@@ -387,7 +394,10 @@ def fit_surface(
     if criterion != method:
         notes.append("Smoothing chosen by UBRE (the known-scale form of GCV) for the "
                      f"{family} family.")
-    k = int(basis_size) if basis_size is not None else 30
+    # default rank: 30, but at most n - 3, so that residual degrees of freedom remain; with
+    # k = n the GCV and REML scores have a finite limit at interpolation (lambda -> 0), which
+    # they then choose for a fair share of small noisy data sets
+    k = int(basis_size) if basis_size is not None else min(30, n - NULL_DIM)
     pts = sc.to_numpy()
     basis = thin_plate_basis(pts, min(k, n))
     x = basis.model_matrix
@@ -395,7 +405,9 @@ def fit_surface(
         notes.append(f"Only {basis.rank} distinct site positions: the basis has rank "
                      f"{basis.rank}.")
     _, lam, _ = demmler_reinsch_svd(x, basis.penalty)
-    grid = lambda_grid(lam[0], _GRID_LAMBDAS)
+    # Poisson working weights are the fitted means: widen the grid's smooth end to match
+    grid = lambda_grid(lam[0], _GRID_LAMBDAS,
+                       weight_max=float(y.max()) if family == "poisson" else 1.0)
 
     fit = pirls(x, basis.penalty, y, family, method=criterion, grid=grid,
                 smoothing=smoothing, refine=smoothing is None)

@@ -193,13 +193,24 @@ def demmler_reinsch_svd(xw: np.ndarray, penalty: np.ndarray,
     return coef_map[None], lam[None], valid[None]
 
 
-def lambda_grid(lam: np.ndarray, size: int = 120) -> np.ndarray:
-    """Log-spaced smoothing parameters spanning edf from near the basis size to near 3."""
+def lambda_grid(lam: np.ndarray, size: int = 120, *, weight_max: float = 1.0) -> np.ndarray:
+    """Log-spaced smoothing parameters spanning edf from near the basis size to near 3.
+
+    ``lam`` are the Demmler-Reinsch eigenvalues of the unweighted design. Penalised IRLS
+    weights ``w`` divide them by about ``w`` (``X'WX`` grows with ``w``), so for working
+    weights up to ``weight_max`` > 1 (Poisson counts: ``w = mu``) the upper end is raised by
+    that factor, and points are added so that the spacing in ``log(lambda)`` stays that of
+    ``size`` points over the unweighted range.
+    """
     pos = lam[lam > 0]
     if pos.size == 0:
         return np.array([1.0])
     lo = 1e-3 / pos.max()
     hi = 1e4 / pos.min()
+    factor = max(float(weight_max), 1.0)
+    if factor > 1.0:
+        size = int(np.ceil(size * np.log(hi * factor / lo) / np.log(hi / lo)))
+        hi *= factor
     return np.geomspace(lo, hi, size)
 
 
