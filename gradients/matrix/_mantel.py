@@ -650,6 +650,13 @@ n_surrogates
     xv, yv = prep(xv_raw), prep(yv_raw)
     names = list(controls)
     zmat = np.column_stack([prep(mats[k].condensed.astype(np.float64)) for k in names])
+    free = zmat.shape[0] - zmat.shape[1] - 1
+    if free < 2:
+        raise InputError(
+            f"{n} sites give {zmat.shape[0]} pairs; after fitting an intercept and "
+            f"{len(names)} control matrix(es) {max(free, 0)} degree(s) of freedom are left, so "
+            "the partial correlation is fixed at +1 or -1 whatever the data. Use more sites "
+            "or fewer control matrices.")
     resid = _Residualiser(zmat, names)
     standardise(xv, "x")
     standardise(yv, "y")  # constant matrices are refused with a clear message

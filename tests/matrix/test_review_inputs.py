@@ -108,3 +108,15 @@ def test_constant_matrices_with_rounding_in_their_mean_are_refused(value):
         matrix_regression(const, {"b": y}, n_resamples=9, rng=0)
     with pytest.raises(InputError, match="same similarity for every pair"):
         distance_decay(const, y, n_boot=9, rng=0)
+
+
+def test_partial_mantel_with_no_residual_freedom_is_refused():
+    # Theory: with 3 sites there are 3 pairs; an intercept and one control leave residuals in
+    # a 1-dimensional space, where any two vectors correlate at +1 or -1, so the "partial
+    # correlation" carries no information. With 4 sites (6 pairs) 4 degrees are left.
+    x3, y3, z3, _ = _data([f"s{i}" for i in range(3)])
+    with pytest.raises(InputError, match="partial correlation is fixed at \\+1 or -1"):
+        partial_mantel(x3, y3, z3, n_resamples=9, rng=0)
+    x4, y4, z4, _ = _data([f"s{i}" for i in range(4)])
+    res = partial_mantel(x4, y4, z4, n_resamples=99, rng=0)
+    assert res.exact and res.n_resamples == 24 and abs(res.statistic) < 1
