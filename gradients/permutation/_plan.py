@@ -9,6 +9,7 @@ given ``rng`` however many workers evaluate the batches and in whatever order.
 from __future__ import annotations
 
 import itertools
+import math
 import numbers
 from collections.abc import Callable, Iterator, Sequence
 from dataclasses import dataclass, field
@@ -185,7 +186,9 @@ def _enumerate(scheme: str, n: int, groups: tuple[np.ndarray, ...],
                shape: tuple[int, int] | None) -> np.ndarray:
     """Every distinct rearrangement, identity first."""
     if scheme == "free":
-        return np.array(list(itertools.permutations(range(n))), dtype=np.intp).reshape(-1, n)
+        count = math.factorial(n)
+        flat = itertools.chain.from_iterable(itertools.permutations(range(n)))
+        return np.fromiter(flat, dtype=np.intp, count=count * n).reshape(count, n)
     if scheme == "strata":
         per_group = [list(itertools.permutations(g.tolist())) for g in groups]
         rows = []

@@ -50,8 +50,8 @@ def _shuffle(key, members, bounds, out):  # pragma: no cover - compiled
         s1 = _splitmix(base + uint64(2) * _GOLDEN)
         s2 = _splitmix(base + uint64(3) * _GOLDEN)
         s3 = _splitmix(base + uint64(4) * _GOLDEN)
-        for p in range(members.size):
-            out[b, members[p]] = members[p]
+        for p in range(out.shape[1]):
+            out[b, p] = p
         for g in range(n_seg):
             lo = bounds[g]
             for i in range(bounds[g + 1] - 1, lo, -1):
