@@ -877,7 +877,9 @@ def surfaces_step(ctx: Context) -> None:
     sec = Section("surfaces", "Smooth surfaces of variables over the ordination")
     sec.paragraphs.append(
         "Each variable modelled as a penalised thin plate regression spline of the first two "
-        "axes (Wood 2003), smoothness chosen by generalised cross-validation. edf near 2 means "
+        "axes (Wood 2003), smoothness chosen by restricted maximum likelihood (REML), which "
+        "over-fits less often than generalised cross-validation in samples of this size "
+        "(Wood 2011). edf near 2 means "
         "a straight arrow describes the variable well; larger values mean a curved response. "
         "The permutation p-value re-selects the smoothness on every permutation.")
     fits = {}
@@ -887,7 +889,8 @@ def surfaces_step(ctx: Context) -> None:
             raise InputError(f"`environment.surfaces` names {v!r}, which is not a numeric "
                              "variable of the environmental table.", columns=[v])
         fit = fit_surface(scores, env[column], n_resamples=ctx.n_resamples,
-                          rng=ctx.rng(f"surface:{v}"), strata=_strata(ctx), grid_size=150)
+                          rng=ctx.rng(f"surface:{v}"), strata=_strata(ctx), method="reml",
+                          grid_size=150)
         fits[column] = fit
         rows.append({"variable": column, "edf": fit.edf,
                      "deviance_explained": fit.deviance_explained, "smoothing": fit.smoothing,
@@ -911,8 +914,8 @@ def surfaces_step(ctx: Context) -> None:
     sec.shown.append("surface_summary")
     ctx.sections.append(sec)
     ctx.methods.append(
-        "Smooth surfaces (thin plate regression splines, Wood 2003; smoothness by generalised "
-        "cross-validation) of " + "; ".join(
+        "Smooth surfaces (thin plate regression splines, Wood 2003; smoothness by restricted "
+        "maximum likelihood, Wood 2011) of " + "; ".join(
             f"{r['variable']} (edf {r['edf']:.1f}, deviance explained "
             f"{100 * r['deviance_explained']:.0f} %, {_fmt_p(r['pvalue'])})" for r in rows)
         + " were fitted over the first two axes.")
