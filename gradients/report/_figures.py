@@ -298,6 +298,31 @@ def _legend_right(fig: Figure, handles: list[Any]) -> None:
 # 1. ordination biplot
 
 
+def _tip_groups(tips: np.ndarray, sig: np.ndarray, *, share: float = 0.12) -> list[list[int]]:
+    """Arrows whose tips lie within ``share`` of the longest arrow of each other, same
+    significance, grouped (single linkage), in input order."""
+    n = len(tips)
+    if n == 0:
+        return []
+    reach = share * max(float(np.max(np.hypot(tips[:, 0], tips[:, 1]))), 1e-300)
+    group = list(range(n))
+
+    def root(i: int) -> int:
+        while group[i] != i:
+            group[i] = group[group[i]]
+            i = group[i]
+        return i
+
+    for i in range(n):
+        for j in range(i + 1, n):
+            if bool(sig[i]) == bool(sig[j]) and math.hypot(*(tips[i] - tips[j])) <= reach:
+                group[root(j)] = root(i)
+    out: dict[int, list[int]] = {}
+    for i in range(n):
+        out.setdefault(root(i), []).append(i)
+    return list(out.values())
+
+
 @_styled
 def ordination_biplot(
     scores: pd.DataFrame,
@@ -599,7 +624,7 @@ def ordination_biplot(
             if "pvalue" in arr.columns
             else np.ones(len(arr), dtype=bool)
         )
-        for name, (tx_, ty_), ok in zip(arr.index, tips, sig, strict=True):
+        for (tx_, ty_), ok in zip(tips, sig, strict=True):
             colour = INK if ok else FADED
             patch = FancyArrowPatch(
                 (0.0, 0.0),
@@ -617,10 +642,16 @@ def ordination_biplot(
                 label="_gr:arrow" if ok else "_gr:arrow-faded",
             )
             ax.add_patch(patch)
+        # one label per group of arrows whose tips nearly coincide (strongly correlated
+        # variables), names stacked, so that labels do not print over each other
+        for members in _tip_groups(tips, sig):
+            lead = max(members, key=lambda i: math.hypot(*tips[i]))
+            tx_, ty_ = tips[lead]
+            ok = bool(sig[lead])
             norm = math.hypot(tx_, ty_) or 1.0
             ux, uy = tx_ / norm, ty_ / norm
             ax.annotate(
-                _text(name, 28),
+                "\n".join(_text(arr.index[i], 28) for i in members),
                 (tx_, ty_),
                 xytext=(5 * ux, 5 * uy),
                 textcoords="offset points",
@@ -706,8 +737,23 @@ def ordination_biplot(
     notes.append(f"{len(sc)} sites")
     _set_title(ax, title, "Ordination of sites", notes)
     ax.autoscale_view()
+    _fit_labels(ax)
     _legend_right(fig, handles)
     return fig
+
+
+def _fit_labels(ax: Axes, passes: int = 2) -> None:
+    """Widen the data limits so every text label drawn in the axes lies inside them."""
+    texts = [t for t in ax.texts if t.get_visible() and t.get_text()]
+    if not texts:
+        return
+    fig = ax.figure
+    for _ in range(passes):
+        fig.draw_without_rendering()
+        inverse = ax.transData.inverted()
+        corners = [inverse.transform(t.get_window_extent().get_points()) for t in texts]
+        ax.update_datalim(np.vstack(corners))
+        ax.autoscale_view()
 
 
 # --------------------------------------------------------------------------------------------

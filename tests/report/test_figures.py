@@ -637,3 +637,16 @@ def test_house_style_is_scoped_and_not_the_default():
     assert ax.get_title(loc="left") == "Ranking of variables"  # titles flush left
     assert ax.get_title(loc="center") == ""
     assert ax.get_xticklabels()[0].get_fontsize() == S.HOUSE_RC["xtick.labelsize"]
+
+
+def test_nearly_coincident_arrows_share_one_stacked_label(scores):
+    # Strongly correlated variables point the same way; their names are stacked in one label
+    # at the longer tip instead of printed over each other. Distinct arrows keep their own.
+    arrows = pd.DataFrame({"axis1": [0.9, 0.88, 0.0], "axis2": [0.1, 0.12, 0.9]},
+                          index=["Cu", "Zn", "sand"])
+    fig = F.ordination_biplot(scores, arrows=arrows, arrow_scale=1.0)
+    drawn = [t.get_text() for t in fig.axes[0].texts]
+    assert "Cu\nZn" in drawn and "sand" in drawn
+    assert not {"Cu", "Zn"} & set(drawn)
+    patches = [p for p in fig.axes[0].patches if p.get_label().startswith("_gr:arrow")]
+    assert len(patches) == 3  # every arrow is still drawn
