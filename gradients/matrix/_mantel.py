@@ -279,6 +279,24 @@ _NOT_CHECKED = (
 )
 
 
+def _spatial_check(x: np.ndarray, y: np.ndarray, stat_of: Callable[[np.ndarray], float],
+                   spatial_null: object, labels: pd.Index, n: int, n_resamples: int,
+                   n_surrogates: int, alternative: str, gen: object, n_jobs: int,
+                   notes: list[str]) -> dict[str, object]:
+    """Spatial-structure check of both matrices and the spatially constrained p-value.
+
+    Appends the notes in words to ``notes`` and returns the result's spatial fields.
+    """
+    geo = location_distances(spatial_null, labels)
+    check = _structure_check({"x": x, "y": y}, geo, n, n_resamples, gen, n_jobs)
+    notes.extend(_structure_notes(check))
+    obs_sp, res_sp, sp_notes = _spatial_null(x, stat_of, geo, n, n_surrogates=n_surrogates,
+                                             alternative=alternative, gen=gen)
+    notes.extend(sp_notes)
+    return {"pvalue_spatial": float(res_sp.pvalue), "statistic_spatial": obs_sp,
+            "null_distribution_spatial": res_sp.null_distribution, "spatial_structure": check}
+
+
 def _spatial_null(
     x: np.ndarray,
     statistic_of: Callable[[np.ndarray], float],
@@ -465,17 +483,8 @@ def mantel(
     if spatial_null is None:
         notes.append(_NOT_CHECKED)
     else:
-        geo = location_distances(spatial_null, labels)
-        check = _structure_check({"x": xv, "y": yv}, geo, n, n_resamples, gen, n_jobs)
-        notes.extend(_structure_notes(check))
-        stat_of = _surrogate_statistic(yv, method)
-        obs_sp, res_sp, sp_notes = _spatial_null(xv, stat_of, geo, n,
-                                                 n_surrogates=n_surrogates,
-                                                 alternative=alternative, gen=gen)
-        notes.extend(sp_notes)
-        extra = {"pvalue_spatial": float(res_sp.pvalue), "statistic_spatial": obs_sp,
-                 "null_distribution_spatial": res_sp.null_distribution,
-                 "spatial_structure": check}
+        extra = _spatial_check(xv, yv, _surrogate_statistic(yv, method), spatial_null, labels,
+                               n, n_resamples, n_surrogates, alternative, gen, n_jobs, notes)
     return MantelResult(
         statistic=observed,
         pvalue=float(res.pvalue),
@@ -702,21 +711,13 @@ n_surrogates
     if spatial_null is None:
         notes.append(_NOT_CHECKED)
     else:
-        geo = location_distances(spatial_null, labels)
-        check = _structure_check({"x": xv_raw, "y": yv_raw}, geo, n, n_resamples, gen, n_jobs)
-        notes.extend(_structure_notes(check))
 
         def stat_of(surrogate: np.ndarray) -> float:
             e = resid(prep(surrogate))
             return float((e @ e_y) / (np.sqrt(e @ e) * ey_norm))
 
-        obs_sp, res_sp, sp_notes = _spatial_null(xv_raw, stat_of, geo, n,
-                                                 n_surrogates=n_surrogates,
-                                                 alternative=alternative, gen=gen)
-        notes.extend(sp_notes)
-        extra = {"pvalue_spatial": float(res_sp.pvalue), "statistic_spatial": obs_sp,
-                 "null_distribution_spatial": res_sp.null_distribution,
-                 "spatial_structure": check}
+        extra = _spatial_check(xv_raw, yv_raw, stat_of, spatial_null, labels, n, n_resamples,
+                               n_surrogates, alternative, gen, n_jobs, notes)
     return PartialMantelResult(
         statistic=observed,
         pvalue=float(res.pvalue),

@@ -298,6 +298,14 @@ def _legend_right(fig: Figure, handles: list[Any]) -> None:
 # 1. ordination biplot
 
 
+def _scatter_pairs(ax: Axes, x: np.ndarray, y: np.ndarray) -> None:
+    """Site pairs as small translucent points, rasterised in SVG when there are many."""
+    n = len(x)
+    ax.scatter(x, y, s=7 if n > 300 else 12, marker="o", color=PALETTE[0],
+               alpha=_point_alpha(n), linewidth=0, zorder=2, label="_gr:pairs",
+               rasterized=n > RASTER_THRESHOLD)
+
+
 def _tip_groups(tips: np.ndarray, sig: np.ndarray, *, share: float = 0.12) -> list[list[int]]:
     """Arrows whose tips lie within ``share`` of the longest arrow of each other, same
     significance, grouped (single linkage), in input order."""
@@ -993,18 +1001,7 @@ def shepard_diagram(
         stress = _check_number(stress, "stress")
     fig, ax = _new_axes(size)
     n = len(sh)
-    ax.scatter(
-        sh["dissimilarity"].to_numpy(),
-        sh["distance"].to_numpy(),
-        s=7 if n > 300 else 12,
-        marker="o",
-        color=PALETTE[0],
-        alpha=_point_alpha(n),
-        linewidth=0,
-        zorder=2,
-        label="_gr:pairs",
-        rasterized=n > RASTER_THRESHOLD,
-    )
+    _scatter_pairs(ax, sh["dissimilarity"].to_numpy(), sh["distance"].to_numpy())
     order = np.lexsort((sh["fitted"].to_numpy(), sh["dissimilarity"].to_numpy()))
     ax.plot(
         sh["dissimilarity"].to_numpy()[order],
@@ -1267,18 +1264,7 @@ def distance_decay_plot(
     unit = _text(distance_unit, 20) if distance_unit else ""
     fig, ax = _new_axes(size)
     n = len(pr)
-    ax.scatter(
-        pr["distance"].to_numpy(),
-        pr["similarity"].to_numpy(),
-        s=7 if n > 300 else 12,
-        marker="o",
-        color=PALETTE[0],
-        alpha=_point_alpha(n),
-        linewidth=0,
-        zorder=2,
-        label="_gr:pairs",
-        rasterized=n > RASTER_THRESHOLD,
-    )
+    _scatter_pairs(ax, pr["distance"].to_numpy(), pr["similarity"].to_numpy())
     handles: list[Any] = [
         Line2D([], [], ls="none", marker="o", color=PALETTE[0], markersize=4, label="site pair")
     ]
