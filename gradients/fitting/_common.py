@@ -10,7 +10,8 @@ import pandas as pd
 
 from .._errors import InputError, format_items
 from .._validation import check_choice, check_labels_match
-from ..permutation import permutation_plan, permutation_test, seed_sequence
+from ..permutation import ADJUST_METHODS, permutation_plan, permutation_test, seed_sequence
+from ..permutation import adjust_pvalues as _adjust
 
 __all__ = [
     "ADJUST_METHODS",
@@ -24,7 +25,6 @@ __all__ = [
     "run_by_pattern",
 ]
 
-ADJUST_METHODS = ("holm", "fdr_bh")
 MISSING_RULES = ("error", "complete")
 
 
@@ -182,26 +182,21 @@ def run_by_pattern(
         nulls.append((cols, null.reshape(null.shape[0], -1)))
         exact_all &= res.exact
         scheme, description = res.scheme, res.description
-    length = max(v.shape[0] for _, v in nulls)
-    null_all = np.full((length, m), np.nan)
-    for cols, v in nulls:
-        null_all[: v.shape[0], cols] = v
+    if len(nulls) == 1:
+        null_all = nulls[0][1]  # one group holds every column, in order
+    else:
+        length = max(v.shape[0] for _, v in nulls)
+        null_all = np.full((length, m), np.nan)
+        for cols, v in nulls:
+            null_all[: v.shape[0], cols] = v
     return TestOutcome(stat, pval, null_all, used, exact_all, scheme, description)
 
 
 def adjust_pvalues(pvalues: np.ndarray, adjust: str | None) -> np.ndarray:
-    """Multiplicity adjustment across the tested columns (statsmodels ``multipletests``)."""
-    if adjust is None:
-        return np.asarray(pvalues, dtype=np.float64).copy()
-    check_choice("adjust", adjust, ADJUST_METHODS)
-    from statsmodels.stats.multitest import multipletests
-
-    p = np.asarray(pvalues, dtype=np.float64)
-    out = np.full(p.shape, np.nan)
-    ok = np.isfinite(p)
-    if ok.any():
-        out[ok] = multipletests(p[ok], method=adjust)[1]
-    return out
+    """Multiplicity adjustment across the tested columns (NaN p-values stay NaN)."""
+    if adjust is not None:
+        check_choice("adjust", adjust, ADJUST_METHODS)
+    return _adjust(pvalues, adjust)
 
 
 def missing_masks(values: pd.DataFrame, missing: str, *, what: str) -> np.ndarray:

@@ -4,12 +4,22 @@ from __future__ import annotations
 
 import numpy as np
 
-__all__ = ["TIE_RTOL", "count_extreme", "extreme_mask", "pvalue_from_counts"]
+__all__ = [
+    "ADJUST_METHODS",
+    "TIE_RTOL",
+    "adjust_pvalues",
+    "count_extreme",
+    "extreme_mask",
+    "pvalue_from_counts",
+]
 
 #: Permuted statistics within this relative distance of the observed one count as ties, and
 #: ties count as "at least as extreme". Batched (BLAS) and direct evaluations of the same
 #: statistic differ by rounding, so exact equality would make p-values depend on the kernel.
 TIE_RTOL = 1e-10
+
+#: Multiplicity adjustments offered by :func:`adjust_pvalues`.
+ADJUST_METHODS = ("holm", "fdr_bh")
 
 
 def extreme_mask(
@@ -101,3 +111,68 @@ def pvalue_from_counts(
     if exact:
         return np.minimum(count / total, 1.0)
     return np.minimum((count + 1.0) / (total + 1.0), 1.0)
+
+
+def adjust_pvalues(pvalues: np.ndarray, method: str | None) -> np.ndarray:
+    """Adjust a family of p-values for multiplicity.
+
+    Parameters
+    ----------
+    pvalues : array_like, 1-D
+        Raw p-values; NaN entries (tests that could not be run) are left out of the family and
+        stay NaN.
+    method : {'holm', 'fdr_bh'} or None
+        'holm': Holm's step-down procedure, which controls the family-wise error rate [1]_;
+        'fdr_bh': Benjamini & Hochberg's step-up procedure, which controls the false discovery
+        rate for independent or positively dependent tests [2]_; None returns a copy.
+
+    Returns
+    -------
+    ndarray
+        Adjusted p-values in the input order, capped at 1.
+
+    Notes
+    -----
+    With the ``m`` finite p-values sorted, ``p_(1) <= ... <= p_(m)``, Holm's adjusted value is
+    ``max_{j <= i} (m - j + 1) p_(j)`` and Benjamini-Hochberg's is
+    ``min_{j >= i} m p_(j) / j``. Both are computed here in a few vector operations; the tests
+    check them against ``statsmodels.stats.multitest.multipletests``, which gives the same
+    numbers but runs a full garbage collection on every Holm call (about 0.1 s in a process
+    that has loaded pandas, more than the rest of a 99,999-permutation vector fit).
+
+    References
+    ----------
+    .. [1] Holm, S. (1979). A simple sequentially rejective multiple test procedure.
+       Scandinavian Journal of Statistics 6: 65-70.
+    .. [2] Benjamini, Y. & Hochberg, Y. (1995). Controlling the false discovery rate: a
+       practical and powerful approach to multiple testing. Journal of the Royal Statistical
+       Society B 57: 289-300.
+
+    Examples
+    --------
+    >>> from gradients.permutation import adjust_pvalues
+    >>> adjust_pvalues([0.01, 0.04, 0.03], "holm").round(3).tolist()
+    [0.03, 0.06, 0.06]
+    >>> adjust_pvalues([0.01, 0.04, 0.03], "fdr_bh").round(3).tolist()
+    [0.03, 0.04, 0.04]
+    """
+    p = np.array(pvalues, dtype=np.float64, ndmin=1)
+    if p.ndim != 1:
+        raise ValueError(f"`pvalues` must be one-dimensional; got shape {p.shape}.")
+    if method is None:
+        return p
+    if method not in ADJUST_METHODS:
+        raise ValueError(f"`method` must be one of {ADJUST_METHODS} or None; got {method!r}.")
+    out = np.full(p.shape, np.nan)
+    ok = np.flatnonzero(np.isfinite(p))
+    m = ok.size
+    if m == 0:
+        return out
+    order = ok[np.argsort(p[ok], kind="stable")]
+    ranked = p[order]
+    if method == "holm":
+        adjusted = np.maximum.accumulate(ranked * np.arange(m, 0, -1))
+    else:
+        adjusted = np.minimum.accumulate((ranked * m / np.arange(1, m + 1))[::-1])[::-1]
+    out[order] = np.minimum(adjusted, 1.0)
+    return out

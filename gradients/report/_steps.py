@@ -14,6 +14,7 @@ import numpy as np
 import pandas as pd
 
 from .._errors import InputError, format_items
+from ..permutation import adjust_pvalues
 from ._model import Section
 from ._pipeline import Context, Skip, step
 
@@ -625,13 +626,7 @@ SMALL_N = 20
 
 
 def _holm(p: pd.Series) -> pd.Series:
-    from statsmodels.stats.multitest import multipletests
-
-    ok = p.notna()
-    out = pd.Series(np.nan, index=p.index)
-    if ok.any():
-        out[ok] = multipletests(p[ok].to_numpy(), method="holm")[1]
-    return out
+    return pd.Series(adjust_pvalues(p.to_numpy(dtype=np.float64), "holm"), index=p.index)
 
 
 def _predictor_correlations(preds: dict[str, object]) -> pd.DataFrame:
