@@ -258,17 +258,44 @@ def _run_parallel(statistic: Statistic, plan: PermutationPlan, n_jobs: int, back
     from joblib import Parallel, delayed, effective_n_jobs
 
     workers = max(1, effective_n_jobs(n_jobs))
+    if backend == "threading" and not _threads_may_share_kernels():
+        workers = 1
+    parts: list[np.ndarray] = []
+    if workers == 1:
+        for i in range(plan.n_batches):
+            parts.append(_evaluate(statistic, plan, i))
+            note(i + 1)
+        return parts
     nb = plan.n_batches
     n_chunks = min(nb, 4 * workers)
     edges = np.linspace(0, nb, n_chunks + 1).round().astype(int)
     chunks = [range(int(a), int(b)) for a, b in itertools.pairwise(edges) if b > a]
-    parts: list[np.ndarray] = []
     runner = Parallel(n_jobs=workers, backend=backend, return_as="generator")
     for chunk, values in zip(chunks, runner(delayed(_evaluate_many)(statistic, plan, c)
                                             for c in chunks), strict=True):
         parts.extend(values)
         note(chunk.stop)
     return parts
+
+
+def _threads_may_share_kernels() -> bool:
+    """False when numba runs its parallel kernels on the 'workqueue' threading layer.
+
+    That layer aborts the whole process when two threads launch parallel kernels at once (the
+    drawing of orders is one), which a thread backend with several workers would do; the
+    'omp' and 'tbb' layers are thread-safe. On 'workqueue' the batches are evaluated in this
+    thread instead (the result is the same; the kernels still use every core).
+    """
+    import numba
+
+    from ._shuffle import shuffle_segments
+
+    try:
+        layer = numba.threading_layer()
+    except ValueError:  # no parallel kernel has run yet: run a tiny one to pick the layer
+        shuffle_segments(0, 2, 2, np.arange(2), np.array([0, 2]))
+        layer = numba.threading_layer()
+    return layer != "workqueue"
 
 
 def _as_rows(values: np.ndarray, m: int) -> np.ndarray:

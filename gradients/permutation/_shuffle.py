@@ -40,8 +40,26 @@ def _rotl(x, k):  # pragma: no cover - compiled
     return (x << uint64(k)) | (x >> uint64(64 - k))
 
 
+@njit(inline="always")
+def _bounded(s0, s1, s2, s3, span):  # pragma: no cover - compiled
+    # One xoshiro256** step per try; Lemire's rejection keeps the draw in [0, span) unbiased.
+    while True:
+        result = _rotl(s1 * uint64(5), 7) * uint64(9)
+        t = s1 << uint64(17)
+        s2 ^= s0
+        s3 ^= s1
+        s1 ^= s2
+        s0 ^= s3
+        s2 ^= t
+        s3 = _rotl(s3, 45)
+        m = (result >> uint64(32)) * span
+        low = m & uint64(0xFFFFFFFF)
+        if low >= span or low >= (uint64(0x100000000) - span) % span:
+            return np.intp(m >> uint64(32)), s0, s1, s2, s3
+
+
 @njit(cache=True, nogil=True, parallel=True)
-def _shuffle(key, members, bounds, out):  # pragma: no cover - compiled
+def _shuffle(key, members, bounds, whole, out):  # pragma: no cover - compiled
     k = out.shape[0]
     n_seg = bounds.size - 1
     for b in prange(k):
@@ -50,31 +68,26 @@ def _shuffle(key, members, bounds, out):  # pragma: no cover - compiled
         s1 = _splitmix(base + uint64(2) * _GOLDEN)
         s2 = _splitmix(base + uint64(3) * _GOLDEN)
         s3 = _splitmix(base + uint64(4) * _GOLDEN)
-        for p in range(out.shape[1]):
-            out[b, p] = p
+        row = out[b]
+        for p in range(row.size):
+            row[p] = p
+        if whole:
+            # every site in one segment, members 0..n-1: no indirection (the same draws)
+            for i in range(row.size - 1, 0, -1):
+                j, s0, s1, s2, s3 = _bounded(s0, s1, s2, s3, uint64(i + 1))
+                tmp = row[i]
+                row[i] = row[j]
+                row[j] = tmp
+            continue
         for g in range(n_seg):
             lo = bounds[g]
             for i in range(bounds[g + 1] - 1, lo, -1):
-                span = uint64(i - lo + 1)
-                while True:
-                    result = _rotl(s1 * uint64(5), 7) * uint64(9)
-                    t = s1 << uint64(17)
-                    s2 ^= s0
-                    s3 ^= s1
-                    s1 ^= s2
-                    s0 ^= s3
-                    s2 ^= t
-                    s3 = _rotl(s3, 45)
-                    m = (result >> uint64(32)) * span
-                    low = m & uint64(0xFFFFFFFF)
-                    if low >= span or low >= (uint64(0x100000000) - span) % span:
-                        break
-                j = lo + np.intp(m >> uint64(32))
+                j, s0, s1, s2, s3 = _bounded(s0, s1, s2, s3, uint64(i - lo + 1))
                 a = members[i]
-                c = members[j]
-                tmp = out[b, a]
-                out[b, a] = out[b, c]
-                out[b, c] = tmp
+                c = members[lo + j]
+                tmp = row[a]
+                row[a] = row[c]
+                row[c] = tmp
     return out
 
 
@@ -86,5 +99,9 @@ def shuffle_segments(key: int, k: int, n_sites: int, members: np.ndarray,
     (``bounds[0] = 0``, ``bounds[-1] = len(members)``). Sites not listed stay in place. Row
     ``b`` is the same for a given ``key`` however many threads run.
     """
+    members = np.asarray(members, dtype=np.intp)
+    bounds = np.asarray(bounds, dtype=np.intp)
+    whole = bool(bounds.size == 2 and members.size == n_sites
+                 and np.array_equal(members, np.arange(n_sites)))
     out = np.empty((k, n_sites), dtype=np.intp)
-    return _shuffle(np.uint64(key), members.astype(np.intp), bounds.astype(np.intp), out)
+    return _shuffle(np.uint64(key), members, bounds, whole, out)

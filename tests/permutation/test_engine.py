@@ -242,3 +242,29 @@ def test_random_orders_are_uniform_over_all_permutations():
     plan = permutation_plan(30, n_resamples=30_000, rng=13)
     orders = np.concatenate(list(plan.batches()))
     assert np.abs(orders.mean(axis=0) - 14.5).max() < 0.25  # sd of mean ~ 8.7/sqrt(3e4) = 0.05
+
+
+def test_thread_workers_survive_numba_workqueue_layer(tmp_path):
+    # numba's 'workqueue' threading layer aborts the process when two threads launch parallel
+    # kernels at once (numba documentation, "The Threading Layers"); the engine must then run
+    # thread-backend batches in one thread, with the same result as one worker.
+    import subprocess
+    import sys
+
+    script = tmp_path / "run.py"
+    script.write_text(
+        "import numba, numpy as np, pandas as pd\n"
+        "from gradients.fitting import fit_vectors\n"
+        "rng = np.random.default_rng(0)\n"
+        "sc = pd.DataFrame(rng.normal(size=(40, 2)), columns=['axis1', 'axis2'])\n"
+        "env = pd.DataFrame(rng.normal(size=(40, 3)), columns=['a', 'b', 'c'])\n"
+        "one = fit_vectors(sc, env, n_resamples=4999, rng=1, n_jobs=1).pvalue\n"
+        "two = fit_vectors(sc, env, n_resamples=4999, rng=1, n_jobs=2).pvalue\n"
+        "assert numba.threading_layer() == 'workqueue', numba.threading_layer()\n"
+        "assert one.equals(two)\n"
+        "print('ok')\n")
+    env = {**__import__("os").environ, "NUMBA_THREADING_LAYER": "workqueue"}
+    done = subprocess.run([sys.executable, str(script)], capture_output=True, text=True,
+                          env=env, timeout=300)
+    assert done.returncode == 0, done.stderr[-2000:]
+    assert done.stdout.strip() == "ok"
