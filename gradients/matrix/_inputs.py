@@ -166,6 +166,11 @@ def build_plan(
         if scheme._draw is not None:
             raise InputError("`scheme` must be a plan of site orders (permutation_plan()), not "
                              "a custom_plan().")
+        if strata is not None:
+            raise InputError("`strata` was given together with a ready plan as `scheme`; the "
+                             "plan already fixes which rearrangements are allowed. Build the "
+                             "plan with permutation_plan(..., strata=...) and leave `strata` "
+                             "out, or pass `scheme` as a name ('strata', 'cyclic', ...).")
         return scheme
     if scheme is not None and scheme not in SCHEMES:
         raise InputError(f"`scheme` must be one of {format_items(SCHEMES)} or a plan from "

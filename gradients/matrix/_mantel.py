@@ -385,7 +385,8 @@ def mantel(
     scheme : str or PermutationPlan, optional
         Permutation scheme of :func:`gradients.permutation.permutation_plan` ('free',
         'strata', 'cyclic', ...), or a ready plan for designs that need more arguments
-        (toroidal grids, blocks); a plan brings its own ``n_resamples`` and ``rng``.
+        (toroidal grids, blocks); a plan brings its own ``n_resamples``, ``rng`` and strata
+        (``strata`` given beside a plan is an error).
     n_jobs : int, default 1
         Threads for the compiled kernel (-1 for all cores). The result does not depend on it.
     early_stop : int, optional

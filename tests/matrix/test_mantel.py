@@ -239,3 +239,7 @@ def test_a_ready_plan_can_be_passed_as_scheme():
     assert (res.pvalue * 12) == pytest.approx(round(res.pvalue * 12))
     with pytest.raises(InputError, match="plan given as `scheme` is for 12 sites"):
         mantel(*_pair(10, 1), scheme=plan)
+    # A plan fixes its design: strata given beside it would be silently ignored, so it is an
+    # error that says how to combine them.
+    with pytest.raises(InputError, match="`strata` was given together with a ready plan"):
+        mantel(x, y, scheme=plan, strata=[0, 1] * 6)
