@@ -386,7 +386,8 @@ def mantel(
         Permutation scheme of :func:`gradients.permutation.permutation_plan` ('free',
         'strata', 'cyclic', ...), or a ready plan for designs that need more arguments
         (toroidal grids, blocks); a plan brings its own ``n_resamples``, ``rng`` and strata
-        (``strata`` given beside a plan is an error).
+        (``strata`` given beside a plan is an error). 'cyclic' and 'toroidal' shift the sites
+        in the order of ``x``: put the matrices in transect or grid order first.
     n_jobs : int, default 1
         Threads for the compiled kernel (-1 for all cores). The result does not depend on it.
     early_stop : int, optional
