@@ -76,18 +76,20 @@ class Design:
     strata: np.ndarray | None
     blocks: np.ndarray | None
     shape: tuple[int, int] | None
+    sites: pd.Index | None = None
 
     @classmethod
     def build(cls, sites: pd.Index, *, scheme: str | None, strata: object, blocks: object,
               shape: tuple[int, int] | None) -> Design:
         return cls(n_sites=len(sites), scheme=scheme, strata=_labels(strata, sites, "strata"),
                    blocks=_labels(blocks, sites, "blocks"),
-                   shape=tuple(shape) if shape is not None else None)  # type: ignore[arg-type]
+                   shape=tuple(shape) if shape is not None else None,  # type: ignore[arg-type]
+                   sites=sites)
 
     def plan(self, keep: np.ndarray | None, *, n_resamples: int, rng: object,
              batch_size: int | None = None):
         """The engine's plan on all sites, or on the sites ``keep`` (complete cases)."""
-        n, strata, blocks = self.n_sites, self.strata, self.blocks
+        n, strata, blocks, sites = self.n_sites, self.strata, self.blocks, self.sites
         if keep is not None and not keep.all():
             if self.scheme in ("toroidal", "blocks"):
                 raise InputError(f"scheme={self.scheme!r} needs every site: it cannot be used "
@@ -95,10 +97,12 @@ class Design:
             n = int(keep.sum())
             strata = strata[keep] if strata is not None else None
             blocks = blocks[keep] if blocks is not None else None
+            sites = sites[keep] if sites is not None else None
         scheme = self.scheme if self.scheme is not None else (
             "strata" if strata is not None else "free")
         return permutation_plan(n, scheme, strata=strata, shape=self.shape, blocks=blocks,
-                                n_resamples=n_resamples, rng=rng, batch_size=batch_size)
+                                n_resamples=n_resamples, rng=rng, batch_size=batch_size,
+                                site_labels=sites)
 
 
 def _labels(values: object, sites: pd.Index, name: str) -> np.ndarray | None:

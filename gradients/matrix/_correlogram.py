@@ -243,7 +243,7 @@ def mantel_correlogram(
         observed = np.where(defined, -observed_sums / scale, np.nan)
 
     plan = build_plan(n, scheme=scheme, strata=align_strata(strata, labels),
-                      n_resamples=n_resamples, rng=gen)
+                      n_resamples=n_resamples, rng=gen, labels=labels)
     center = 0.0 if plan.scheme == "free" else None
     notes: list[str] = []
     pvalues = np.full(k, np.nan)

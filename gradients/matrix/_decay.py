@@ -12,6 +12,7 @@ from scipy.spatial.distance import squareform
 from .._errors import InputError
 from .._result import ResultMixin
 from .._validation import RNGLike, check_choice, check_rng
+from ..permutation import site_ranks
 from ._inputs import MatrixLike, align_matrices
 
 __all__ = ["DistanceDecayResult", "distance_decay"]
@@ -243,9 +244,10 @@ def distance_decay(
     squares = [squareform(q * w, checks=False) for q in (np.ones_like(xs), xs, ys, xs * xs,
                                                           xs * ys)]
     boot = np.empty((int(n_boot), 2))
+    ranks = site_ranks(labels)  # counts drawn over label-sorted sites: row order does not matter
     for start in range(0, int(n_boot), _BOOT_CHUNK):
         k = min(_BOOT_CHUNK, int(n_boot) - start)
-        counts = gen.multinomial(n, np.full(n, 1.0 / n), size=k).astype(np.float64)
+        counts = gen.multinomial(n, np.full(n, 1.0 / n), size=k)[:, ranks].astype(np.float64)
         wsums = [0.5 * np.einsum("bi,bi->b", counts @ sq, counts) for sq in squares]
         bs, bi = _fit_weighted(*wsums)
         boot[start:start + k, 0] = bs

@@ -157,8 +157,12 @@ def build_plan(
     strata: object,
     n_resamples: int,
     rng: object,
+    labels: pd.Index | None = None,
 ) -> PermutationPlan:
-    """The permutation plan for a matrix test: free by default, within ``strata`` if given."""
+    """The permutation plan for a matrix test: free by default, within ``strata`` if given.
+
+    With the sites' ``labels``, random orders do not depend on the order the sites come in.
+    """
     if isinstance(scheme, PermutationPlan):
         if scheme.n_sites != n:
             raise InputError(f"The permutation plan given as `scheme` is for {scheme.n_sites} "
@@ -176,7 +180,8 @@ def build_plan(
         raise InputError(f"`scheme` must be one of {format_items(SCHEMES)} or a plan from "
                          f"permutation_plan(); got {scheme!r}.")
     return permutation_plan(n, scheme or ("strata" if strata is not None else "free"),
-                            strata=strata, n_resamples=n_resamples, rng=rng)
+                            strata=strata, n_resamples=n_resamples, rng=rng,
+                            site_labels=labels)
 
 
 def align_strata(strata: object, labels: pd.Index) -> object:

@@ -239,12 +239,13 @@ def _mantel_kendall(x: np.ndarray, y: np.ndarray, n: int, plan: PermutationPlan,
 
 def _structure_check(named: Mapping[str, np.ndarray], geo: np.ndarray, n: int,
                      n_resamples: int, gen: np.random.Generator,
-                     n_jobs: int) -> pd.DataFrame:
+                     n_jobs: int, labels: pd.Index | None = None) -> pd.DataFrame:
     """Mantel test (Pearson, one-sided 'greater') of each matrix against distance in space."""
     rows = []
     for name, v in named.items():
         plan = build_plan(n, scheme=None, strata=None,
-                          n_resamples=min(n_resamples, SPATIAL_CHECK_RESAMPLES), rng=gen)
+                          n_resamples=min(n_resamples, SPATIAL_CHECK_RESAMPLES), rng=gen,
+                          labels=labels)
         r, res = _mantel_pearson(v, geo, plan, method="pearson", alternative="greater",
                                  early_stop=None, n_jobs=n_jobs, names=(name, "spatial_null"))
         rows.append({"matrix": name, "statistic": r, "pvalue": float(res.pvalue),
@@ -288,7 +289,7 @@ def _spatial_check(x: np.ndarray, y: np.ndarray, stat_of: Callable[[np.ndarray],
     Appends the notes in words to ``notes`` and returns the result's spatial fields.
     """
     geo = location_distances(spatial_null, labels)
-    check = _structure_check({"x": x, "y": y}, geo, n, n_resamples, gen, n_jobs)
+    check = _structure_check({"x": x, "y": y}, geo, n, n_resamples, gen, n_jobs, labels)
     notes.extend(_structure_notes(check))
     obs_sp, res_sp, sp_notes = _spatial_null(x, stat_of, geo, n, n_surrogates=n_surrogates,
                                              alternative=alternative, gen=gen)
@@ -469,7 +470,7 @@ def mantel(
     xv = mats["x"].condensed.astype(np.float64)
     yv = mats["y"].condensed.astype(np.float64)
     plan = build_plan(n, scheme=scheme, strata=align_strata(strata, labels),
-                      n_resamples=n_resamples, rng=gen)
+                      n_resamples=n_resamples, rng=gen, labels=labels)
     if method == "kendall":
         observed, res = _mantel_kendall(xv, yv, n, plan, alternative=alternative,
                                         early_stop=early_stop, n_jobs=n_jobs)
@@ -695,7 +696,7 @@ n_surrogates
         return c[:, 0] / (ey_norm * np.sqrt(res2))
 
     plan = build_plan(n, scheme=scheme, strata=align_strata(strata, labels),
-                      n_resamples=n_resamples, rng=gen)
+                      n_resamples=n_resamples, rng=gen, labels=labels)
     res = _run(statistic, plan, observed=observed, alternative=alternative, center=None,
                early_stop=early_stop, n_jobs=n_jobs, task="partial Mantel test")
     notes = _exact_note(plan, n)

@@ -196,7 +196,7 @@ def matrix_regression(
     big = square_of(yc)
 
     plan = build_plan(n, scheme=scheme, strata=align_strata(strata, labels),
-                      n_resamples=n_resamples, rng=gen)
+                      n_resamples=n_resamples, rng=gen, labels=labels)
     with numba_threads(n_jobs):
         res = permutation_test(lambda orders: from_cross(cross_products(xc, big, orders)),
                                plan, observed=obs, alternative="greater",

@@ -8,7 +8,14 @@ there are few enough); :func:`permutation_test` evaluates a batched statistic ov
 """
 
 from ._engine import PermutationResult, permutation_test
-from ._plan import SCHEMES, PermutationPlan, custom_plan, permutation_plan, seed_sequence
+from ._plan import (
+    SCHEMES,
+    PermutationPlan,
+    custom_plan,
+    permutation_plan,
+    seed_sequence,
+    site_ranks,
+)
 from ._progress import TerminalProgress, current_reporter, report_progress
 from ._pvalue import (
     ADJUST_METHODS,
@@ -36,4 +43,5 @@ __all__ = [
     "pvalue_from_counts",
     "report_progress",
     "seed_sequence",
+    "site_ranks",
 ]

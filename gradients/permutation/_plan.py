@@ -21,7 +21,14 @@ from .._errors import InputError, format_items
 from .._validation import check_choice, check_n_resamples
 from ._shuffle import shuffle_segments
 
-__all__ = ["SCHEMES", "PermutationPlan", "custom_plan", "permutation_plan", "seed_sequence"]
+__all__ = [
+    "SCHEMES",
+    "PermutationPlan",
+    "custom_plan",
+    "permutation_plan",
+    "seed_sequence",
+    "site_ranks",
+]
 
 SCHEMES = ("free", "strata", "cyclic", "toroidal", "blocks")
 
@@ -129,7 +136,8 @@ def _batch_key(seed: np.random.SeedSequence) -> int:
 
 def _draw_free(plan: PermutationPlan, seed: np.random.SeedSequence, k: int) -> np.ndarray:
     n = plan.n_sites
-    return shuffle_segments(_batch_key(seed), k, n, np.arange(n), np.array([0, n]))
+    members = plan._groups[0] if plan._groups else np.arange(n)
+    return shuffle_segments(_batch_key(seed), k, n, members, np.array([0, n]))
 
 
 def _draw_strata(plan: PermutationPlan, seed: np.random.SeedSequence, k: int) -> np.ndarray:
@@ -267,6 +275,49 @@ def _groups_from_labels(labels: Sequence[object] | np.ndarray | pd.Series, n: in
     return tuple(np.flatnonzero(codes == c).astype(np.intp) for c in range(codes.max() + 1))
 
 
+def _sort_key(values: object) -> np.ndarray:
+    """Stable ascending order of labels; labels of mixed types are compared as text."""
+    arr = pd.Index(values).to_numpy()
+    try:
+        return np.argsort(arr, kind="stable")
+    except TypeError:
+        return np.argsort(arr.astype(str), kind="stable")
+
+
+def site_ranks(site_labels: Sequence[object] | np.ndarray | pd.Index) -> np.ndarray:
+    """Position of every site when the sites are sorted by label (0 for the first).
+
+    Random draws made over sites in this order and mapped back with ``draws[..., ranks]`` do
+    not depend on the order the sites come in (labels of mixed types sort as text).
+    """
+    labels = pd.Index(site_labels)
+    ranks = np.empty(len(labels), dtype=np.intp)
+    ranks[_sort_key(labels)] = np.arange(len(labels))
+    return ranks
+
+
+def _canonical_groups(scheme: str, n: int, groups: tuple[np.ndarray, ...],
+                      site_labels: object, strata: object) -> tuple[np.ndarray, ...]:
+    """The segments to shuffle, members in ascending label order, strata by stratum label.
+
+    Shuffling site positions listed in label order is Fisher-Yates on the label-sorted sites,
+    carried back to the given order: the drawn rearrangement of the data is the same whatever
+    order the sites come in.
+    """
+    labels = pd.Index(site_labels)
+    if len(labels) != n:
+        raise InputError(f"`site_labels` must give one label per site: {len(labels)} labels "
+                         f"for {n} sites.")
+    rank = site_ranks(labels)
+    if scheme == "free":
+        return (np.argsort(rank).astype(np.intp),)
+    values = pd.Series(strata).reset_index(drop=True) if not isinstance(strata, pd.Series) \
+        else strata.reset_index(drop=True)
+    first = [values.iloc[g[0]] for g in groups]
+    ordered = [groups[i] for i in _sort_key(first)]
+    return tuple(g[np.argsort(rank[g], kind="stable")] for g in ordered)
+
+
 def permutation_plan(
     n_sites: int,
     scheme: str = "free",
@@ -278,6 +329,7 @@ def permutation_plan(
     rng: object = None,
     exact: bool | None = None,
     batch_size: int | None = None,
+    site_labels: Sequence[object] | np.ndarray | pd.Index | None = None,
 ) -> PermutationPlan:
     """Plan the rearrangements of sites that make up a permutation null distribution.
 
@@ -310,6 +362,12 @@ def permutation_plan(
         Rearrangements per batch (default 1000, fewer for very many sites so that a batch of
         orders stays near 32 MB). Part of the plan: results do not depend on how many workers
         evaluate the batches.
+    site_labels : sequence, optional
+        Label of every site, in site order. With labels, random 'free' and 'strata' orders are
+        drawn over the sites sorted by label (and strata sorted by stratum label) and mapped
+        back to the given order, so a given ``rng`` yields the same null distribution, and the
+        same p-value, however the rows of the input tables were sorted. 'cyclic', 'toroidal'
+        and 'blocks' designs are defined by the site order itself and do not use them.
 
     Returns
     -------
@@ -385,6 +443,8 @@ def permutation_plan(
     elif not isinstance(batch_size, numbers.Integral) or batch_size < 1:
         raise InputError(f"`batch_size` must be a positive integer; got {batch_size!r}.")
 
+    if site_labels is not None and scheme in ("free", "strata") and not exact:
+        groups = _canonical_groups(scheme, n, groups, site_labels, strata)
     enumerated = _enumerate(scheme, n, groups, grid) if exact else None
     size = len(enumerated) if enumerated is not None else n_resamples
     return PermutationPlan(

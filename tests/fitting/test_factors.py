@@ -80,7 +80,7 @@ def test_weighted_r2_by_hand_and_batched_null_by_direct_relabelling():
     assert fit.table.loc["habitat", "r2"] == pytest.approx(
         weighted_share(fac.habitat.to_numpy()), abs=1e-12)
     # two ways agree: batched kernel vs relabelling site i with the label of site orders[b, i]
-    orders = permutation_plan(36, n_resamples=40, rng=8).batch(0)
+    orders = permutation_plan(36, n_resamples=40, rng=8, site_labels=sc.index).batch(0)
     for b in (0, 13, 39):
         for j, name in enumerate(fac.columns):
             labels = fac[name].to_numpy()[orders[b]]

@@ -130,7 +130,7 @@ def test_batched_permutation_statistic_equals_refits():
     sc, rng = _cloud(n=50, seed=7)
     y = pd.Series(np.sin(2 * sc.axis1) + rng.normal(0, 0.4, 50), index=sc.index, name="y")
     fit = fit_surface(sc, y, n_resamples=30, rng=3)
-    orders = permutation_plan(50, n_resamples=30, rng=3).batch(0)
+    orders = permutation_plan(50, n_resamples=30, rng=3, site_labels=sc.index).batch(0)
     for b in (0, 11, 29):
         permuted = pd.Series(y.to_numpy()[orders[b]], index=sc.index, name="y")
         # a fresh test of the permuted data selects lambda on the same grid: equal to rounding

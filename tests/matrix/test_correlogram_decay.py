@@ -14,7 +14,7 @@ from gradients import InputError
 from gradients.distance import DistanceMatrix
 from gradients.matrix import distance_decay, mantel_correlogram
 from gradients.matrix._correlogram import progressive_holm
-from gradients.permutation import permutation_plan
+from gradients.permutation import permutation_plan, site_ranks
 
 
 def _field(n, seed):
@@ -63,7 +63,8 @@ def test_correlogram_null_is_one_pass_over_the_same_permutations():
     d, geo = _field(12, 2)
     res = mantel_correlogram(d, geo, classes=[0, 3, 6, 15], n_resamples=20, rng=4,
                              min_pairs=1)
-    plan = permutation_plan(12, n_resamples=20, rng=np.random.default_rng(4))
+    plan = permutation_plan(12, n_resamples=20, rng=np.random.default_rng(4),
+                            site_labels=d.labels)
     orders = np.concatenate(list(plan.batches()))
     iu = np.triu_indices(12, k=1)
     codes = np.digitize(geo.condensed, [0, 3, 6, 15]) - 1
@@ -134,8 +135,9 @@ def test_site_bootstrap_equals_explicit_resampling_of_sites():
     # numpy.polyfit (Nekola & White 1999: resample sites, not pairs).
     d, geo, g, logs = _decay_data(15, 2)
     res = distance_decay(d, geo, n_boot=5, rng=123)
-    gen = np.random.default_rng(123)  # same stream: multinomial counts of each site
-    counts = gen.multinomial(15, np.full(15, 1 / 15), size=5)
+    gen = np.random.default_rng(123)  # same stream: multinomial counts of each site, drawn
+    # over the label-sorted sites (gradients.permutation.site_ranks) and mapped back
+    counts = gen.multinomial(15, np.full(15, 1 / 15), size=5)[:, site_ranks(d.labels)]
     gs, ls = squareform(g), squareform(logs)
     for b in range(5):
         sites = np.repeat(np.arange(15), counts[b])

@@ -70,7 +70,8 @@ def test_partial_null_equals_brute_force_for_each_planned_permutation(permute):
     # residual matrix, then the partial correlation of x* and y given z (statsmodels OLS).
     x, y, z, _ = _matrices(12, 3)
     res = partial_mantel(x, y, z, permute=permute, n_resamples=40, rng=5)
-    plan = permutation_plan(12, n_resamples=40, rng=np.random.default_rng(5))
+    plan = permutation_plan(12, n_resamples=40, rng=np.random.default_rng(5),
+                            site_labels=x.labels)
     orders = np.concatenate(list(plan.batches()))
     iu = np.triu_indices(12, k=1)
     zc = [z.condensed]
