@@ -53,14 +53,14 @@ def bench_vectors(n: int = 300, p: int = 20, n_perm: int = 99_999, loop_perm: in
     fit_vectors(sc.iloc[:50], env.iloc[:50], n_resamples=99, rng=0)  # compile kernels
     plan = permutation_plan(n, n_resamples=n_perm, rng=1)
     t_draw = _timed(lambda: [None for _ in plan.batches()], repeat=2)
-    t_ours = _timed(lambda: fit_vectors(sc, env, n_resamples=n_perm, rng=1), repeat=2)
+    t_ours = _timed(lambda: fit_vectors(sc, env, n_resamples=n_perm, rng=1), repeat=5)
     t_ours2 = _timed(lambda: fit_vectors(sc, env, n_resamples=n_perm, rng=1, n_jobs=2),
-                     repeat=2)
+                     repeat=5)
     # the statistic alone, on 10 stored batches of 1000 orders, scaled to n_perm
     batches = [plan.batch(i) for i in range(10)]
     statistic = _statistic_factory(sc.to_numpy(), env.to_numpy(), None)(
         np.ones(n, dtype=bool), np.arange(p))
-    t_stat = _timed(lambda: [statistic(b) for b in batches], repeat=3) * n_perm / 10_000
+    t_stat = _timed(lambda: [statistic(b) for b in batches], repeat=5) * n_perm / 10_000
     orders = plan.batch(0)[:loop_perm]
     xd = np.column_stack([np.ones(n), sc.to_numpy()])
     y = env.to_numpy()
@@ -74,7 +74,7 @@ def bench_vectors(n: int = 300, p: int = 20, n_perm: int = 99_999, loop_perm: in
             out[b] = 1 - (resid**2).sum(0) / ((yb - yb.mean(0)) ** 2).sum(0)
         return out
 
-    t_loop = _timed(loop, repeat=3) * n_perm / loop_perm
+    t_loop = _timed(loop, repeat=5) * n_perm / loop_perm
     # agreement of the two ways on the loop's permutations
     check = loop()
     ours = fit_vectors(sc, env, n_resamples=n_perm, rng=1).null_distribution[:loop_perm]
@@ -114,7 +114,7 @@ def bench_surface(n: int = 200, n_perm: int = 999, loop_perm: int = 5):
                 rss = ((yb - hat @ yb) ** 2).sum()
                 best = min(best, n * rss / (n - np.trace(hat)) ** 2)
 
-    t_loop = _timed(loop, repeat=3) * n_perm / loop_perm + t_n
+    t_loop = _timed(loop, repeat=5) * n_perm / loop_perm + t_n
     return {"gauss2": t_g, "gauss1": t_g1, "poisson2": t_p, "loop": t_loop}
 
 
@@ -128,9 +128,9 @@ def main() -> None:
         "",
         f"Machine: {platform.processor() or platform.machine()}, {os.cpu_count()} cores, "
         f"numpy {np.__version__}, BLAS single-threaded (OPENBLAS_NUM_THREADS="
-        f"{os.environ.get('OPENBLAS_NUM_THREADS')}). Times in seconds, best of 2 runs (the loop "
-        "and the batched statistic best of 3); the machine is shared, so ratios matter more "
-        "than times. 1-minute load average "
+        f"{os.environ.get('OPENBLAS_NUM_THREADS')}). Times in seconds; vectors: best of 5 runs "
+        "on both sides, surfaces: best of 2 (the loop best of 3); the machine is shared, so "
+        "ratios matter more than times. 1-minute load average "
         f"{load_before:.1f} before, {load_after:.1f} after. With `n_jobs=1` the engine still "
         "draws the orders on both cores (compiled kernel); `n_jobs` adds threads evaluating "
         "batches.",

@@ -152,7 +152,11 @@ def _statistic_factory(x: np.ndarray, y: np.ndarray, w: np.ndarray | None):
 
             def statistic(orders: np.ndarray) -> np.ndarray:
                 proj = project_batch(orders, rows, yc)  # (k, d, m)
-                return (proj**2).sum(axis=1) / tss
+                fitted = np.square(proj[:, 0, :])
+                for a in range(1, proj.shape[1]):
+                    fitted += np.square(proj[:, a, :])
+                fitted /= tss
+                return fitted
 
             return statistic
         ws = w[keep]

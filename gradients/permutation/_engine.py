@@ -248,6 +248,20 @@ def _evaluate_many(statistic: Statistic, plan: PermutationPlan,
     return [_evaluate(statistic, plan, i) for i in indices]
 
 
+def _evaluate_many_one_thread(statistic: Statistic, plan: PermutationPlan,
+                              indices: range) -> list[np.ndarray]:
+    # A thread worker runs numba's parallel kernels on one thread (the setting is per thread):
+    # the workers already share the cores, and nested thread teams would oversubscribe them.
+    import numba
+
+    before = numba.get_num_threads()
+    numba.set_num_threads(1)
+    try:
+        return _evaluate_many(statistic, plan, indices)
+    finally:
+        numba.set_num_threads(before)
+
+
 def _run_parallel(statistic: Statistic, plan: PermutationPlan, n_jobs: int, backend: str,
                   note: Callable[[int], None]) -> list[np.ndarray]:
     """Evaluate all batches on several workers, in order.
@@ -271,7 +285,8 @@ def _run_parallel(statistic: Statistic, plan: PermutationPlan, n_jobs: int, back
     edges = np.linspace(0, nb, n_chunks + 1).round().astype(int)
     chunks = [range(int(a), int(b)) for a, b in itertools.pairwise(edges) if b > a]
     runner = Parallel(n_jobs=workers, backend=backend, return_as="generator")
-    for chunk, values in zip(chunks, runner(delayed(_evaluate_many)(statistic, plan, c)
+    task = _evaluate_many_one_thread if backend == "threading" else _evaluate_many
+    for chunk, values in zip(chunks, runner(delayed(task)(statistic, plan, c)
                                             for c in chunks), strict=True):
         parts.extend(values)
         note(chunk.stop)

@@ -58,36 +58,50 @@ def _bounded(s0, s1, s2, s3, span):  # pragma: no cover - compiled
             return np.intp(m >> uint64(32)), s0, s1, s2, s3
 
 
+#: Rows per parallel task: one scratch buffer serves a run of rows.
+_ROWS_PER_TASK = 64
+
+
 @njit(cache=True, nogil=True, parallel=True)
 def _shuffle(key, members, bounds, whole, out):  # pragma: no cover - compiled
-    k = out.shape[0]
+    k, n = out.shape
     n_seg = bounds.size - 1
-    for b in prange(k):
-        base = key + uint64(4) * uint64(b) * _GOLDEN
-        s0 = _splitmix(base + _GOLDEN)
-        s1 = _splitmix(base + uint64(2) * _GOLDEN)
-        s2 = _splitmix(base + uint64(3) * _GOLDEN)
-        s3 = _splitmix(base + uint64(4) * _GOLDEN)
-        row = out[b]
-        for p in range(row.size):
-            row[p] = p
-        if whole:
-            # every site in one segment, members 0..n-1: no indirection (the same draws)
-            for i in range(row.size - 1, 0, -1):
-                j, s0, s1, s2, s3 = _bounded(s0, s1, s2, s3, uint64(i + 1))
-                tmp = row[i]
-                row[i] = row[j]
-                row[j] = tmp
-            continue
-        for g in range(n_seg):
-            lo = bounds[g]
-            for i in range(bounds[g + 1] - 1, lo, -1):
-                j, s0, s1, s2, s3 = _bounded(s0, s1, s2, s3, uint64(i - lo + 1))
-                a = members[i]
-                c = members[lo + j]
-                tmp = row[a]
-                row[a] = row[c]
-                row[c] = tmp
+    m = members.size
+    n_tasks = (k + _ROWS_PER_TASK - 1) // _ROWS_PER_TASK
+    for task in prange(n_tasks):
+        # Fisher-Yates runs on positions in the list ``members`` (a scratch row), then one pass
+        # carries it to sites: site members[p] takes the data of site members[scratch[p]].
+        # Swapping sites members[i] and members[j] directly gives the same orders, slower.
+        scratch = np.empty(m, dtype=np.uint64)
+        for b in range(task * _ROWS_PER_TASK, min(k, (task + 1) * _ROWS_PER_TASK)):
+            base = key + uint64(4) * uint64(b) * _GOLDEN
+            s0 = _splitmix(base + _GOLDEN)
+            s1 = _splitmix(base + uint64(2) * _GOLDEN)
+            s2 = _splitmix(base + uint64(3) * _GOLDEN)
+            s3 = _splitmix(base + uint64(4) * _GOLDEN)
+            row = out[b]
+            for p in range(n):
+                row[p] = p
+            if whole:
+                # every site in one segment, members 0..n-1: shuffle the row itself
+                for i in range(n - 1, 0, -1):
+                    j, s0, s1, s2, s3 = _bounded(s0, s1, s2, s3, uint64(i + 1))
+                    tmp = row[i]
+                    row[i] = row[j]
+                    row[j] = tmp
+                continue
+            for p in range(m):
+                scratch[p] = uint64(p)
+            for g in range(n_seg):
+                # a view per segment, indexed from 0: no negative-index checks in the loop
+                seg = scratch[bounds[g] : bounds[g + 1]]
+                for i in range(seg.size - 1, 0, -1):
+                    j, s0, s1, s2, s3 = _bounded(s0, s1, s2, s3, uint64(i + 1))
+                    tmp = seg[i]
+                    seg[i] = seg[j]
+                    seg[j] = tmp
+            for p in range(m):  # unsigned indices: no negative-index checks either
+                row[members[p]] = members[scratch[p]]
     return out
 
 
@@ -104,4 +118,4 @@ def shuffle_segments(key: int, k: int, n_sites: int, members: np.ndarray,
     whole = bool(bounds.size == 2 and members.size == n_sites
                  and np.array_equal(members, np.arange(n_sites)))
     out = np.empty((k, n_sites), dtype=np.intp)
-    return _shuffle(np.uint64(key), members, bounds, whole, out)
+    return _shuffle(np.uint64(key), members.astype(np.uint64), bounds, whole, out)
