@@ -51,7 +51,7 @@ def bench_vectors(n: int = 300, p: int = 20, n_perm: int = 99_999, loop_perm: in
     env = pd.DataFrame(rng.normal(size=(n, p)) + 0.2 * sc.axis1.to_numpy()[:, None],
                        index=sites, columns=[f"v{j}" for j in range(p)])
     fit_vectors(sc.iloc[:50], env.iloc[:50], n_resamples=99, rng=0)  # compile kernels
-    plan = permutation_plan(n, n_resamples=n_perm, rng=1)
+    plan = permutation_plan(n, n_resamples=n_perm, rng=1, site_labels=sc.index)
     t_draw = _timed(lambda: [None for _ in plan.batches()], repeat=2)
     t_ours = _timed(lambda: fit_vectors(sc, env, n_resamples=n_perm, rng=1), repeat=5)
     t_ours2 = _timed(lambda: fit_vectors(sc, env, n_resamples=n_perm, rng=1, n_jobs=2),
