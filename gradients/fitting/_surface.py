@@ -13,6 +13,7 @@ from scipy import stats
 from .._errors import InputError, format_items
 from .._result import ResultMixin, format_value
 from .._validation import check_choice, check_n_resamples
+from ..permutation import seed_sequence
 from ._common import Design, align_table, missing_masks
 from ._kernels import project_batch
 from ._scores import site_scores
@@ -39,6 +40,8 @@ LINEAR_GCV_RATIO = 1.01
 #: Above this p-value the verdict says there is no clear response.
 VERDICT_ALPHA = 0.05
 _GRID_LAMBDAS = 120
+#: Spawn key of the curvature test's random stream (far beyond any batch number).
+_CURVATURE_STREAM = 0x63757276
 
 
 @dataclass(frozen=True, repr=False)
@@ -70,6 +73,11 @@ class SurfaceFit(ResultMixin):
     n_resamples : int
     exact : bool
     scheme : str
+    pvalue_curvature : float
+        Gaussian family: permutation p-value of the curvature, the share of the plane's
+        residual sum of squares that the smooth removes, with the plane's residuals permuted
+        (Freedman & Lane 1983) and lambda re-selected every time. NaN for the other families
+        and when ``n_resamples=0``.
     basis_size : int
         Rank of the thin plate basis (``n`` sites for the full thin plate spline).
     verdict : str
@@ -96,6 +104,7 @@ class SurfaceFit(ResultMixin):
     n_resamples: int
     exact: bool
     scheme: str
+    pvalue_curvature: float
     basis_size: int
     n: int
     verdict: str
@@ -317,9 +326,15 @@ def fit_surface(
     before the basis is built (thin plate splines are isotropic, so both axes share one scale);
     ``smoothing`` refers to those coordinates. ``edf`` excludes the intercept: a plane has
     ``edf = 2``. The verdict rule: no clear response when the p-value (permutation, else the
-    approximate one) exceeds 0.05; otherwise a straight vector would do when ``edf < 2.5`` or
-    the plane's GCV score ``n D / (n - 3)^2`` is within 1 % of the surface's ``n D / (n -
-    edf - 1)^2``; otherwise the response is curved.
+    approximate one) exceeds 0.05. Otherwise, for the Gaussian family with permutations, a
+    straight vector would do when ``edf < 2.5`` or the curvature p-value exceeds 0.05, else
+    the response is curved. The curvature test permutes the plane's residuals [6]_ and
+    re-selects lambda by REML every time, whatever ``method``: with GCV in its place a bend
+    planted at n = 40 was found in 16 of 40 data sets against 39 of 40, both rejecting a true
+    plane in 2 of 40. For Poisson and binomial (and ``n_resamples=0``) a straight vector would
+    do when ``edf < 2.5`` or the plane's GCV score ``n D / (n - 3)^2`` is within 1 % of the
+    surface's ``n D / (n - edf - 1)^2``; this rule inherits the over-fitting of the chosen
+    criterion on small samples.
 
     With a full basis (``k`` equal to the number of sites) no residual degrees of freedom
     remain, so ``n - tr(A)`` and the residual sum of squares vanish together as lambda -> 0:
@@ -350,6 +365,8 @@ def fit_surface(
        Linear Models. Chapman & Hall.
     .. [5] Hastie, T. J. & Tibshirani, R. J. (1990). Generalized Additive Models. Chapman &
        Hall.
+    .. [6] Freedman, D. & Lane, D. (1983). A nonstochastic interpretation of reported
+       significance levels. Journal of Business & Economic Statistics 1: 292-298.
 
     Examples
     --------
@@ -424,7 +441,12 @@ def fit_surface(
     # approximate test against the constant model
     pval_approx = _approx_pvalue(family, x, basis.penalty, y, fit, d0, n)
 
-    # permutation test
+    # permutation tests: the response against a constant, then (Gaussian) the curvature, from
+    # a stream of its own (a spawn key that no batch of the first plan reaches)
+    plan_seed = seed_sequence(rng)
+    plan_seed_curvature = np.random.SeedSequence(
+        plan_seed.entropy, spawn_key=(*plan_seed.spawn_key, _CURVATURE_STREAM),
+        pool_size=plan_seed.pool_size)
     pvalue, statistic, null, used, exact, scheme_used = (np.nan, dexp, np.zeros(0), 0, False,
                                                           "none")
     if n_resamples > 0:
@@ -432,7 +454,7 @@ def fit_surface(
                                               smoothing, d0)
         from ..permutation import permutation_test
 
-        plan = design.plan(mask, n_resamples=n_resamples, rng=rng,
+        plan = design.plan(mask, n_resamples=n_resamples, rng=plan_seed,
                            batch_size=max(16, min(1000, 4_000_000 // (n * basis.rank))))
         res = permutation_test(statistic_fn, plan, alternative="greater", n_jobs=n_jobs,
                                backend="threading", task="surface permutations")
@@ -447,8 +469,22 @@ def fit_surface(
     gcv_plane = n * dev_plane / (n - NULL_DIM) ** 2
     gcv_smooth = n * dev / max(n - edf_total, 1e-8) ** 2
     edf = edf_total - 1.0
+
+    # curvature: does the smooth improve on the plane by more than chance? (Gaussian)
+    p_curv = np.nan
+    if n_resamples > 0 and family == "gaussian":
+        from ..permutation import permutation_test
+
+        # REML whatever `method`: GCV's over-fitting of small samples makes a much weaker
+        # curvature test (see Notes)
+        curv_fn = _curvature_statistic(x, basis.penalty, y, t, "reml", grid, smoothing)
+        plan_c = design.plan(mask, n_resamples=n_resamples, rng=plan_seed_curvature,
+                             batch_size=max(16, min(1000, 4_000_000 // (n * basis.rank))))
+        res_c = permutation_test(curv_fn, plan_c, alternative="greater", n_jobs=n_jobs,
+                                 backend="threading", task="surface curvature permutations")
+        p_curv = float(res_c.pvalue)
     verdict = _verdict(edf, gcv_plane, gcv_smooth, pvalue if n_resamples > 0 else pval_approx,
-                       "permutation" if n_resamples > 0 else "approximate", dexp)
+                       "permutation" if n_resamples > 0 else "approximate", dexp, p_curv)
 
     gdf, gshape = _prediction_grid(basis, beta, pts, family, grid_size, list(axes))
     fitted = pd.Series(fit.mu[0], index=sc.index, name=name)
@@ -458,6 +494,7 @@ def fit_surface(
         variable=name, family=family, method=criterion, edf=edf, deviance_explained=dexp,
         smoothing=lam_hat, pvalue_approx=pval_approx, pvalue=pvalue, statistic=statistic,
         null_distribution=null, n_resamples=used, exact=exact, scheme=scheme_used,
+        pvalue_curvature=p_curv,
         basis_size=basis.rank, n=n, verdict=verdict, fitted=fitted, grid=gdf,
         axes=(str(axes[0]), str(axes[1])), notes=tuple(notes), _basis=basis, _beta=beta,
         _grid_shape=gshape,
@@ -520,13 +557,53 @@ def _permutation_statistic(x, penalty, y, family, criterion, grid, smoothing, d0
     return statistic_glm
 
 
+def _curvature_statistic(x, penalty, y, t, criterion, grid, smoothing):
+    """Batched curvature share ``1 - D_smooth / D_plane`` for permuted plane residuals.
+
+    The plane (intercept and both axes) is the unpenalised part of the basis, so adding any
+    plane to the data changes neither fit's residuals: the statistic of ``fitted plane +
+    permuted residuals`` is that of the permuted residuals alone, whose Demmler-Reinsch
+    coordinates are one batched projection. Lambda is re-selected on the grid every time.
+    """
+    n = len(y)
+    coef_map, lam, valid = demmler_reinsch_svd(x, penalty)
+    rows = np.ascontiguousarray((x @ coef_map[0]).T)  # (p, n), orthonormal
+    q_plane, _ = np.linalg.qr(t)
+    resid = y - q_plane @ (q_plane.T @ y)
+    plane_rows = np.ascontiguousarray(q_plane.T)
+    ee = float(resid @ resid)
+    lam_grid = grid if smoothing is None else np.array([float(smoothing)])
+    rank = int(np.linalg.matrix_rank(penalty))
+
+    def statistic(orders: np.ndarray) -> np.ndarray:
+        b = project_batch(orders, rows, resid[:, None])[:, :, 0]  # (k, p)
+        k = b.shape[0]
+        crit, rss, _ = criterion_grid(b * b, np.broadcast_to(lam, (k, lam.shape[1])),
+                                      np.broadcast_to(valid, (k, valid.shape[1])),
+                                      np.full(k, ee), n, lam_grid, criterion,
+                                      known_scale=False, penalty_rank=rank)
+        smooth = rss[np.arange(k), np.argmin(crit, axis=1)]
+        on_plane = project_batch(orders, plane_rows, resid[:, None])[:, :, 0]
+        flat = np.maximum(ee - (on_plane * on_plane).sum(axis=1), 1e-300)
+        return 1.0 - smooth / flat
+
+    return statistic
+
+
 def _verdict(edf: float, gcv_plane: float, gcv_smooth: float, p: float, kind: str,
-             dexp: float) -> str:
+             dexp: float, p_curvature: float = np.nan) -> str:
     detail = f"edf = {format_value(edf)}, deviance explained = {format_value(dexp)}"
     if np.isfinite(p) and p > VERDICT_ALPHA:
         return (f"no clear response: the surface is not distinguishable from a flat one "
                 f"({kind} p = {format_value(p)}; {detail})")
     ptext = f"{kind} p = {format_value(p)}"
+    if np.isfinite(p_curvature):
+        ctext = f"curvature p = {format_value(p_curvature)}"
+        if edf < LINEAR_EDF or p_curvature > VERDICT_ALPHA:
+            return (f"a straight vector would do: the surface does not bend more than chance "
+                    f"would have it ({detail}; {ptext}; {ctext})")
+        return (f"curved response: a straight vector would misrepresent it ({detail}; "
+                f"{ptext}; {ctext})")
     if edf < LINEAR_EDF or gcv_plane <= LINEAR_GCV_RATIO * gcv_smooth:
         return (f"a straight vector would do: the surface is close to a plane ({detail}; "
                 f"{ptext})")

@@ -876,7 +876,10 @@ def surfaces_step(ctx: Context) -> None:
         "over-fits less often than generalised cross-validation in samples of this size "
         "(Wood 2011). edf near 2 means "
         "a straight arrow describes the variable well; larger values mean a curved response. "
-        "The permutation p-value re-selects the smoothness on every permutation.")
+        "The permutation p-value re-selects the smoothness on every permutation; the curvature "
+        "p-value asks whether the surface bends more than chance would have it, by permuting "
+        "the residuals of the plane (Freedman & Lane 1983), and decides between 'a straight "
+        "vector would do' and 'curved response'.")
     fits = {}
     for v in variables:
         column = names.get(v, v)
@@ -890,6 +893,7 @@ def surfaces_step(ctx: Context) -> None:
         rows.append({"variable": column, "edf": fit.edf,
                      "deviance_explained": fit.deviance_explained, "smoothing": fit.smoothing,
                      "pvalue_approx": fit.pvalue_approx, "pvalue": fit.pvalue,
+                     "pvalue_curvature": fit.pvalue_curvature,
                      "n_resamples": fit.n_resamples, "basis_size": fit.basis_size,
                      "verdict": fit.verdict})
         contours = fit.contours()
@@ -912,5 +916,9 @@ def surfaces_step(ctx: Context) -> None:
         "Smooth surfaces (thin plate regression splines, Wood 2003; smoothness by restricted "
         "maximum likelihood, Wood 2011) of " + "; ".join(
             f"{r['variable']} (edf {r['edf']:.1f}, deviance explained "
-            f"{100 * r['deviance_explained']:.0f} %, {_fmt_p(r['pvalue'])})" for r in rows)
-        + " were fitted over the first two axes.")
+            f"{100 * r['deviance_explained']:.0f} %, {_fmt_p(r['pvalue'])}"
+            + (f"; curvature {_fmt_p(r['pvalue_curvature'])}"
+               if np.isfinite(r["pvalue_curvature"]) else "") + ")" for r in rows)
+        + " were fitted over the first two axes"
+        + ("; curvature was tested by permuting the residuals of the plane (Freedman & Lane "
+           "1983)." if any(np.isfinite(r["pvalue_curvature"]) for r in rows) else "."))
