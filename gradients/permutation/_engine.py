@@ -213,11 +213,11 @@ def _run(statistic: Statistic, plan: PermutationPlan, obs_vec: np.ndarray, scala
         null = np.concatenate(chunks, axis=0)
         used[~stopped] = null.shape[0]
     else:
-        if n_jobs == 1 or nb == 1:
-            parts = []
-            for i in range(nb):
-                parts.append(_evaluate(statistic, plan, i))
-                note(i + 1)
+        if nb == 1:
+            parts = [_evaluate(statistic, plan, 0)]
+            note(1)
+        elif n_jobs == 1:
+            parts = _run_prefetching(statistic, plan, note)
         else:
             parts = _run_parallel(statistic, plan, n_jobs, backend, note)
         null = np.concatenate([_as_rows(p, obs_vec.size) for p in parts], axis=0)
@@ -241,6 +241,46 @@ def _run(statistic: Statistic, plan: PermutationPlan, obs_vec: np.ndarray, scala
         stopped_early=bool(stopped[0]) if scalar else stopped,
         description=plan.description,
     )
+
+
+def _run_prefetching(statistic: Statistic, plan: PermutationPlan,
+                     note: Callable[[int], None]) -> list[np.ndarray]:
+    """Evaluate the batches in order in this thread while a helper thread draws the next one.
+
+    Drawing random orders (a compiled kernel that releases the GIL) then overlaps with the
+    statistic instead of alternating with it; the helper draws on one thread so that the two
+    share the cores. Enumerated and custom plans, whose batches are slices or Python draws,
+    and numba's 'workqueue' layer (see :func:`_threads_may_share_kernels`) run plainly.
+    """
+    nb = plan.n_batches
+    parts: list[np.ndarray] = []
+    if plan.exact or plan._draw is not None or not _threads_may_share_kernels():
+        for i in range(nb):
+            parts.append(_evaluate(statistic, plan, i))
+            note(i + 1)
+        return parts
+    from concurrent.futures import ThreadPoolExecutor
+
+    with ThreadPoolExecutor(max_workers=1, thread_name_prefix="gradients-draw") as pool:
+        pending = pool.submit(_draw_one_thread, plan, 0)
+        for i in range(nb):
+            orders = pending.result()
+            if i + 1 < nb:
+                pending = pool.submit(_draw_one_thread, plan, i + 1)
+            parts.append(np.asarray(statistic(orders), dtype=np.float64))
+            note(i + 1)
+    return parts
+
+
+def _draw_one_thread(plan: PermutationPlan, i: int) -> np.ndarray:
+    import numba
+
+    before = numba.get_num_threads()
+    numba.set_num_threads(1)
+    try:
+        return plan.batch(i)
+    finally:
+        numba.set_num_threads(before)
 
 
 def _evaluate_many(statistic: Statistic, plan: PermutationPlan,
