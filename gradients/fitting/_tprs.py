@@ -307,6 +307,7 @@ def pirls(
     refine: bool = False,
     max_iter: int = 60,
     tol: float = 1e-8,
+    known_scale: bool | None = None,
     _centred: bool = False,
 ) -> PirlsFit:
     """Penalised iteratively re-weighted least squares, batched over data sets ``y`` (k, n).
@@ -315,6 +316,8 @@ def pirls(
     the working linear model over ``grid`` ("performance iteration", Gu 1992; Wood 2017,
     section 6.1), refined by a bounded scalar search when ``refine`` is True, or held at
     ``smoothing``. For the Gaussian family with identity link one iteration is exact.
+    ``known_scale`` (default: True for Poisson and binomial) decides whether REML takes the
+    scale as 1 or profiles it out (quasi-likelihood; robust to over-dispersion).
     """
     y = np.atleast_2d(np.asarray(y, dtype=np.float64))
     k, n = y.shape
@@ -326,14 +329,15 @@ def pirls(
         shift = y.mean(axis=1)
         out = pirls(x, penalty, y - shift[:, None], family, method=method, grid=grid,
                     smoothing=smoothing, refine=refine, max_iter=max_iter, tol=tol,
-                    _centred=True)
+                    known_scale=known_scale, _centred=True)
         beta = out.beta.copy()
         beta[:, ones[0]] += shift
         return PirlsFit(beta=beta, mu=out.mu + shift[:, None], smoothing=out.smoothing,
                         edf=out.edf, deviance=out.deviance, converged=out.converged,
                         iterations=out.iterations)
     penalty_rank = int(np.linalg.matrix_rank(penalty)) if penalty.any() else 0
-    known_scale = family != "gaussian"
+    if known_scale is None:
+        known_scale = family != "gaussian"
     if family == "poisson":
         mu = np.maximum(y, 0.1) * 0.5 + 0.5 * np.maximum(y.mean(axis=1, keepdims=True), 0.1)
     elif family == "binomial":
