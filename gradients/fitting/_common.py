@@ -86,6 +86,14 @@ class Design:
                    shape=tuple(shape) if shape is not None else None,  # type: ignore[arg-type]
                    sites=sites)
 
+    def gap_notes(self, masks: np.ndarray) -> list[str]:
+        """Words for a cyclic design run over the sites with values only."""
+        if self.scheme == "cyclic" and not masks.all():
+            return ["Cyclic shifts run over the sites with values only: where a column has "
+                    "gaps, its missing sites are skipped and their neighbours become adjacent "
+                    "in the shifted sequence."]
+        return []
+
     def plan(self, keep: np.ndarray | None, *, n_resamples: int, rng: object,
              batch_size: int | None = None):
         """The engine's plan on all sites, or on the sites ``keep`` (complete cases)."""
@@ -155,19 +163,23 @@ def run_by_pattern(
 
     ``masks`` is a boolean (n_sites, m) array of usable sites per column; ``factory(keep,
     columns)`` returns the batched statistic for those columns on the sites ``keep``. Columns
-    with the same sites are tested together in one engine run; separate groups get independent
-    random streams spawned from one root seed. Null distributions of different lengths (possible
-    only with exact enumeration on different subsets) are padded with NaN.
+    with the same sites are tested together in one engine run. Columns measured at every site
+    use the root seed itself; a group with gaps gets a random stream of its own, keyed by the
+    labels of its sites, so that a column's p-value does not depend on the order of the
+    columns or on which other columns are in the call. Null distributions of different lengths
+    (possible only with exact enumeration on different subsets) are padded with NaN.
     """
     m = masks.shape[1]
     patterns: dict[bytes, list[int]] = {}
     for j in range(m):
         patterns.setdefault(masks[:, j].tobytes(), []).append(j)
     groups = list(patterns.values())
-    if len(groups) == 1:
+    if len(groups) == 1 and masks[:, groups[0][0]].all():
         seeds: Sequence[object] = [rng]
     else:
-        seeds = seed_sequence(rng).spawn(len(groups))
+        root = seed_sequence(rng)
+        seeds = [root if masks[:, cols[0]].all() else
+                 _subset_stream(root, design.sites, masks[:, cols[0]]) for cols in groups]
     stat = np.empty(m)
     pval = np.empty(m)
     used = np.empty(m, dtype=np.int64)
@@ -194,6 +206,23 @@ def run_by_pattern(
         for cols, v in nulls:
             null_all[: v.shape[0], cols] = v
     return TestOutcome(stat, pval, null_all, used, exact_all, scheme, description)
+
+
+#: First spawn-key word of the streams of site subsets (far beyond any batch number).
+_SUBSET_STREAM = 0x73756273
+
+
+def _subset_stream(root: np.random.SeedSequence, sites: pd.Index | None,
+                   keep: np.ndarray) -> np.random.SeedSequence:
+    """A random stream for the sites ``keep``, keyed by their labels (in sorted order)."""
+    import hashlib
+
+    labels = sorted(map(str, sites[keep])) if sites is not None else \
+        [str(i) for i in np.flatnonzero(keep)]
+    digest = hashlib.sha256("\x1f".join(labels).encode("utf-8")).digest()
+    words = [int.from_bytes(digest[i : i + 4], "little") for i in range(0, 16, 4)]
+    return np.random.SeedSequence(root.entropy, spawn_key=(*root.spawn_key, _SUBSET_STREAM,
+                                                          *words), pool_size=root.pool_size)
 
 
 def adjust_pvalues(pvalues: np.ndarray, adjust: str | None) -> np.ndarray:

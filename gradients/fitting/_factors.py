@@ -174,7 +174,7 @@ def fit_factors(
     w_all = np.ones(len(sc)) if w_in is None else w_in
     design = Design.build(sc.index, scheme=scheme, strata=strata, blocks=blocks, shape=shape)
     x = sc.to_numpy()
-    notes: list[str] = []
+    notes: list[str] = design.gap_notes(masks)
     codes_full = np.zeros((fac.shape[1], len(sc)), dtype=np.int64)  # codes on kept sites
     n_levels = np.zeros(fac.shape[1], dtype=np.int64)
     centroid_rows = []

@@ -416,7 +416,7 @@ def fit_surface(
     sc = sc_all[mask]
     y = series.to_numpy()[mask]
     n = len(y)
-    notes = _check_family_values(family, y, name, sc.index)
+    notes = _check_family_values(family, y, name, sc.index) + design.gap_notes(mask[:, None])
     if n < 8:
         raise InputError(f"A surface needs at least 8 sites with values; {name!r} has {n}.")
     if not mask.all():

@@ -74,6 +74,8 @@ class VectorFit(ResultMixin):
             'auto' takes the largest multiplier with which every arrow tip stays within
             ``ARROW_FILL`` (90 %) of the sites' extent from the origin on each axis, in the
             arrow's own direction along that axis; a float is used as the multiplier itself.
+            'auto' needs the sites to surround the origin on every axis (centred scores) and
+            raises an error otherwise.
 
         Returns
         -------
@@ -94,6 +96,14 @@ def vector_arrows(fit: VectorFit, scale: str | float) -> pd.DataFrame:
         if scale != "auto":
             raise InputError(f"`scale` must be 'auto' or a positive number; got {scale!r}.")
         lo, hi = fit._bounds  # most negative and most positive site score per axis
+        outside = [a for a, low, high in zip(axes, lo, hi, strict=True) if not low < 0 < high]
+        if outside:
+            word = "axis" if len(outside) == 1 else "axes"
+            raise InputError(
+                f"The sites do not surround the origin on {word} {format_items(outside)}, so "
+                "arrows drawn from the origin cannot be fitted inside the site cloud: the "
+                "scores are not centred (ordinations from gradients are). Centre the scores "
+                "before fitting, or pass a number as `scale`.")
         room = np.where(raw > 0, hi[None, :], -lo[None, :])
         with np.errstate(divide="ignore", invalid="ignore"):
             ratio = np.where(np.abs(raw) > 0, room / np.abs(raw), np.inf)
@@ -110,6 +120,14 @@ def vector_arrows(fit: VectorFit, scale: str | float) -> pd.DataFrame:
 
 
 def _numeric_environment(env: pd.DataFrame) -> pd.DataFrame:
+    dates = [c for c in env.columns
+             if pd.api.types.is_datetime64_any_dtype(env[c])
+             or pd.api.types.is_timedelta64_dtype(env[c])]
+    if dates:
+        raise InputError(
+            f"Column(s) {format_items(dates)} hold dates or durations, not measurements: convert "
+            "them to numbers first (for example days since the first sampling date) or leave "
+            "them out.", columns=dates)
     bad = [c for c in env.columns
            if not pd.api.types.is_numeric_dtype(env[c]) or pd.api.types.is_bool_dtype(env[c])]
     if bad:
@@ -285,7 +303,7 @@ def fit_vectors(
     x = sc.to_numpy()
     y = env.to_numpy()
     d = x.shape[1]
-    notes: list[str] = []
+    notes: list[str] = design.gap_notes(masks)
     n_used = masks.sum(axis=0)
     too_few = env.columns[n_used < d + 2]
     if len(too_few):
@@ -323,8 +341,10 @@ def fit_vectors(
                      "(pvalue_adjusted repeats pvalue).")
     if outcome.exact:
         notes.append("Exact test: every distinct permutation was enumerated.")
-    if len(sc) < 10:
-        notes.append(f"Only {len(sc)} sites: r2 and its p-value are unstable.")
+    if int(n_used.min()) < 10:
+        notes.append(f"Only {int(n_used.min())} sites for some variable(s) (see column n): r2 "
+                     "and its p-value are unstable." if (n_used < len(sc)).any() else
+                     f"Only {len(sc)} sites: r2 and its p-value are unstable.")
     bounds = np.vstack([x.min(axis=0), x.max(axis=0)])
     return VectorFit(
         table=table,

@@ -253,3 +253,43 @@ def test_shift_and_scale_invariance_with_weights():
     moved = fit_vectors(sc, 1e6 + 250.0 * env, weights=w, n_resamples=99, rng=5)
     assert moved.table.loc["pH", "r2"] == pytest.approx(base.table.loc["pH", "r2"], abs=1e-10)
     np.testing.assert_allclose(moved.null_distribution, base.null_distribution, atol=1e-9)
+
+
+def test_auto_arrows_need_centred_scores_and_dates_are_not_measurements():
+    # Arrows start at the origin; when the sites do not surround it (uncentred scores) no
+    # multiplier keeps them inside the cloud, so 'auto' says so instead of drawing them
+    # outside. A datetime column gets its own message (it is neither categorical nor a
+    # measurement).
+    rng = np.random.default_rng(0)
+    sc = pd.DataFrame(rng.uniform(1, 3, (30, 2)), columns=["axis1", "axis2"])
+    env = pd.DataFrame({"a": sc.axis1 + rng.normal(0, 0.1, 30)})
+    fit = fit_vectors(sc, env, n_resamples=99, rng=1)
+    with pytest.raises(InputError, match="do not surround the origin on axes 'axis1', 'axis2'"):
+        fit.arrows()
+    assert fit.arrows(scale=1.0).attrs["multiplier"] == 1.0
+    centred = fit_vectors(sc - sc.mean(), env, n_resamples=99, rng=1)
+    assert np.isfinite(centred.arrows()["length"]).all()
+    env["when"] = pd.date_range("2020-01-01", periods=30)
+    with pytest.raises(InputError, match="dates or durations"):
+        fit_vectors(sc, env)
+
+
+def test_small_sample_note_counts_the_sites_each_variable_uses():
+    rng = np.random.default_rng(2)
+    sc = pd.DataFrame(rng.normal(size=(30, 2)), columns=["axis1", "axis2"])
+    env = pd.DataFrame({"a": rng.normal(size=30), "b": rng.normal(size=30)})
+    env.loc[6:, "b"] = np.nan  # b measured at 6 sites only
+    fit = fit_vectors(sc, env, missing="complete", n_resamples=99, rng=1)
+    assert any("Only 6 sites for some variable" in note for note in fit.notes)
+    assert not any("Only" in note for note in fit_vectors(sc, env[["a"]], rng=1).notes)
+
+
+def test_cyclic_design_with_gaps_says_the_gaps_are_closed():
+    rng = np.random.default_rng(0)
+    sc = pd.DataFrame(rng.normal(size=(20, 2)), columns=["axis1", "axis2"])
+    env = pd.DataFrame({"a": rng.normal(size=20)})
+    env.iloc[3, 0] = np.nan
+    fit = fit_vectors(sc, env, scheme="cyclic", missing="complete", rng=1)
+    assert fit.exact and fit.n_resamples == 19  # 19 shifts of the 19 sites with values
+    assert any(note.startswith("Cyclic shifts run over the sites with values only")
+               for note in fit.notes)
