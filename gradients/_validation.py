@@ -109,3 +109,22 @@ def check_labels_match(
     if fix:
         message += " " + fix
     raise InputError(message, sites=[*only_left, *only_right])
+
+
+def check_unambiguous_series(values: pd.Series, labels: pd.Index, name: str) -> None:
+    """Refuse a Series whose default index could be read as site labels or as positions.
+
+    With integer site labels 0..n-1 in another order, a Series on a default RangeIndex (a
+    column taken from a table in row order, say) could mean "one value per position" or
+    "one value per site label", and the two give different answers.
+    """
+    index = values.index
+    default = isinstance(index, pd.RangeIndex) and index.start == 0 and index.step == 1
+    if (default and len(values) == len(labels) and not pd.Index(labels).equals(index)
+            and set(index) == set(labels)):
+        raise InputError(
+            f"`{name}` is a Series on a default 0..{len(labels) - 1} index, and the site "
+            "labels are those same integers in another order, so it is unclear whether its "
+            "values follow the site labels or the order of the sites. Pass "
+            f"`{name}.to_numpy()` for values in site order, or index the Series by site label "
+            "explicitly (for example with set_index on the site column).")

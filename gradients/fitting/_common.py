@@ -9,7 +9,7 @@ import numpy as np
 import pandas as pd
 
 from .._errors import InputError, format_items
-from .._validation import check_choice, check_labels_match
+from .._validation import check_choice, check_labels_match, check_unambiguous_series
 from ..permutation import ADJUST_METHODS, permutation_plan, permutation_test, seed_sequence
 from ..permutation import adjust_pvalues as _adjust
 
@@ -52,6 +52,7 @@ def check_weights(weights: object, sites: pd.Index) -> np.ndarray | None:
     if weights is None:
         return None
     if isinstance(weights, pd.Series):
+        check_unambiguous_series(weights, sites, "weights")
         check_labels_match(sites, weights.index, left_name="`scores`", right_name="`weights`",
                            fix="Give one weight per site, indexed by site label.")
         w = weights.loc[sites].to_numpy(dtype=np.float64)
@@ -117,6 +118,7 @@ def _labels(values: object, sites: pd.Index, name: str) -> np.ndarray | None:
     if values is None:
         return None
     if isinstance(values, pd.Series):
+        check_unambiguous_series(values, sites, name)
         check_labels_match(sites, values.index, left_name="`scores`", right_name=f"`{name}`",
                            fix=f"Give `{name}` one label per site, indexed by site label.")
         out = values.loc[sites]

@@ -11,7 +11,7 @@ from scipy import stats
 from scipy.spatial.distance import squareform
 
 from .._errors import InputError, format_items
-from .._validation import check_labels_match
+from .._validation import check_labels_match, check_unambiguous_series
 from ..distance import DistanceMatrix
 from ..permutation import SCHEMES, PermutationPlan, permutation_plan
 
@@ -193,6 +193,8 @@ def align_strata(strata: object, labels: pd.Index) -> object:
     """
     if strata is None:
         return None
+    if isinstance(strata, pd.Series):
+        check_unambiguous_series(strata, labels, "strata")
     if isinstance(strata, pd.Series) and len(strata) == len(labels) \
             and set(strata.index) == set(labels):
         return strata.loc[labels].to_numpy()

@@ -173,9 +173,9 @@ def _run(statistic: Callable[[np.ndarray], np.ndarray], plan: PermutationPlan, *
     if early_stop is not None and alternative == "two-sided" and center is None \
             and not plan.exact:
         raise InputError(
-            "`early_stop` with alternative='two-sided' needs a known null mean, available for "
-            "mantel() with method='pearson' or 'spearman' under free permutation only; use a "
-            "one-sided alternative or leave `early_stop` unset."
+            "`early_stop` with alternative='two-sided' needs a known null mean. It is known "
+            "only for mantel() with method='pearson' or 'spearman' under free permutation "
+            f"(this is {task!r}); use a one-sided alternative or leave `early_stop` unset."
         )
     with numba_threads(n_jobs):
         return permutation_test(statistic, plan, observed=observed, alternative=alternative,

@@ -34,8 +34,10 @@ class PermutationResult(ResultMixin):
         p-value(s): exact ``b / N`` when every rearrangement was enumerated, ``(b + 1) / (P + 1)``
         otherwise, ``h / L`` for a statistic stopped early (Besag & Clifford 1991).
     null_distribution : ndarray, shape (P,) or (P, m)
-        Statistics under the rearrangements evaluated (for a run stopped early, those
-        evaluated before the stop).
+        Statistics under the rearrangements evaluated (for a run stopped early, every
+        rearrangement of the batches evaluated up to the stop; ``n_resamples`` says how many
+        of them count toward each p-value). For an exact test the first row is the identity,
+        which holds the observed value.
     n_resamples : int or ndarray
         Rearrangements that count toward each p-value.
     exact : bool
@@ -59,7 +61,20 @@ class PermutationResult(ResultMixin):
 
 
 def _evaluate(statistic: Statistic, plan: PermutationPlan, i: int) -> np.ndarray:
-    return np.asarray(statistic(plan.batch(i)), dtype=np.float64)
+    return _checked(statistic(plan.batch(i)), plan, i)
+
+
+def _checked(values: object, plan: PermutationPlan, i: int) -> np.ndarray:
+    """The statistics of batch ``i`` as floats, after checking there is one per rearrangement."""
+    out = np.asarray(values, dtype=np.float64)
+    expected = min(plan.batch_size, plan.size - i * plan.batch_size)
+    if out.ndim == 0 or out.shape[0] != expected:
+        raise InputError(
+            f"Batch {i} holds {expected} rearrangements but the statistic returned "
+            f"{'a scalar' if out.ndim == 0 else out.shape[0]} value(s); a custom plan's draw "
+            "must return one surrogate per requested row, and the statistic one value (or "
+            "one row) per surrogate.")
+    return out
 
 
 def permutation_test(
@@ -137,6 +152,9 @@ def permutation_test(
     alternative = check_alternative(alternative)
     if not isinstance(plan, PermutationPlan):
         raise InputError("`plan` must come from permutation_plan() or custom_plan().")
+    if not isinstance(n_jobs, numbers.Integral) or isinstance(n_jobs, bool) or n_jobs == 0 \
+            or n_jobs < -1:
+        raise InputError(f"`n_jobs` must be a positive integer or -1 (all cores); got {n_jobs!r}.")
     if early_stop is not None:
         if not isinstance(early_stop, numbers.Integral) or early_stop < 1:
             raise InputError(f"`early_stop` must be a positive integer; got {early_stop!r}.")
@@ -154,6 +172,11 @@ def permutation_test(
         obs = np.asarray(observed, dtype=np.float64)
     scalar = obs.ndim == 0
     obs_vec = np.atleast_1d(obs)
+    if np.isnan(obs_vec).any():
+        raise InputError(
+            "The observed statistic is not a number (NaN) for statistic(s) "
+            f"{np.flatnonzero(np.isnan(obs_vec)).tolist()}: there is nothing to compare the "
+            "rearrangements with. Check the data for constant or missing values.")
 
     reporter = current_reporter()
     nb = plan.n_batches
@@ -222,6 +245,18 @@ def _run(statistic: Statistic, plan: PermutationPlan, obs_vec: np.ndarray, scala
             parts = _run_parallel(statistic, plan, n_jobs, backend, note)
         null = np.concatenate([_as_rows(p, obs_vec.size) for p in parts], axis=0)
 
+    bad = np.isnan(null)
+    if bad.any():
+        cols = np.flatnonzero(bad.any(axis=0)).tolist()
+        raise InputError(
+            f"The statistic was not a number (NaN) for {int(bad.any(axis=1).sum())} of "
+            f"{null.shape[0]} rearrangements (statistic(s) {cols}); a p-value would be "
+            "meaningless. Check the data for constant or missing values.")
+    if plan.exact and null.shape[0]:
+        # The enumeration lists the identity first: it is the observed arrangement itself,
+        # so it takes the observed value (a batched formula can differ from the direct one by
+        # more than the tie tolerance when the statistic is computed by cancellation).
+        null[0] = obs_vec
     counts = count_extreme(null, obs_vec, alternative, center=center)
     pvalues = pvalue_from_counts(counts, null.shape[0], exact=plan.exact)
     if stopped.any():
@@ -267,7 +302,7 @@ def _run_prefetching(statistic: Statistic, plan: PermutationPlan,
             orders = pending.result()
             if i + 1 < nb:
                 pending = pool.submit(_draw_one_thread, plan, i + 1)
-            parts.append(np.asarray(statistic(orders), dtype=np.float64))
+            parts.append(_checked(statistic(orders), plan, i))
             note(i + 1)
     return parts
 

@@ -440,9 +440,19 @@ def permutation_plan(
 
     if batch_size is None:
         batch_size = max(16, min(DEFAULT_BATCH, _MAX_BATCH_CELLS // n))
-    elif not isinstance(batch_size, numbers.Integral) or batch_size < 1:
+    elif not isinstance(batch_size, numbers.Integral) or isinstance(batch_size, bool) \
+            or batch_size < 1:
         raise InputError(f"`batch_size` must be a positive integer; got {batch_size!r}.")
 
+    if site_labels is not None:
+        labels = pd.Index(site_labels)
+        if len(labels) != n:
+            raise InputError(f"`site_labels` must give one label per site: {len(labels)} "
+                             f"labels for {n} sites.")
+        if labels.has_duplicates:
+            dup = labels[labels.duplicated()].unique()
+            raise InputError(f"`site_labels` repeats {format_items(list(dup))}: every site "
+                             "needs a label of its own.")
     if site_labels is not None and scheme in ("free", "strata") and not exact:
         groups = _canonical_groups(scheme, n, groups, site_labels, strata)
     enumerated = _enumerate(scheme, n, groups, grid) if exact else None

@@ -68,11 +68,17 @@ def test_strata_series_with_integer_site_ids_is_matched_by_label(labels):
     # A strata Series indexed by the sites' own integer IDs (a RangeIndex) must be matched by
     # label like any other labelled Series. Theory: the exact p-value (all 3! 2! 2! = 24
     # within-stratum permutations) is then the same for the reordered matrices.
+    # A default 0..n-1 index over sites labelled 0..n-1 in another order could also be read
+    # by position: that one case is refused, and an explicit index of labels is matched.
     x, y, _, _ = _data(pd.Index(labels))
     strata = pd.Series(["a", "b", "c", "a", "b", "c", "a"], index=labels)
     aligned = mantel(x, y, strata=strata, n_resamples=999, rng=1)
-    shuffled = mantel(_reordered(x), y, strata=strata, n_resamples=999, rng=1)
     assert aligned.exact and aligned.n_resamples == 24
+    if labels == range(7):
+        with pytest.raises(InputError, match="unclear whether its values follow"):
+            mantel(_reordered(x), y, strata=strata, n_resamples=999, rng=1)
+        strata = pd.Series(strata.to_numpy(), index=pd.Index(list(labels)))
+    shuffled = mantel(_reordered(x), y, strata=strata, n_resamples=999, rng=1)
     assert shuffled.pvalue == pytest.approx(aligned.pvalue, abs=1e-12)
 
 

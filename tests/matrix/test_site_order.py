@@ -61,3 +61,23 @@ def test_distance_decay_bootstrap_does_not_depend_on_site_order():
     a = distance_decay(d, geo, n_boot=200, rng=5)
     b = distance_decay(d.subset(order), geo.subset(order), n_boot=200, rng=5)
     pd.testing.assert_frame_equal(a.table, b.table, rtol=1e-9)
+
+
+def test_strata_on_a_default_index_with_integer_site_labels_is_refused():
+    # Integer site labels 0..n-1 in another order: a Series on a default RangeIndex could be
+    # read by label or by position, with different answers, so it is refused with the fix.
+    import pytest
+
+    from gradients import InputError
+
+    rng = np.random.default_rng(0)
+    labels = [5, 4, 3, 2, 1, 0]
+    pts = rng.normal(size=(6, 2))
+    x = DistanceMatrix(pdist(pts), labels)
+    y = DistanceMatrix(pdist(pts + rng.normal(0, 0.5, size=(6, 2))), labels)
+    strata = pd.Series([0, 0, 0, 1, 1, 1])
+    with pytest.raises(InputError, match="unclear whether its values follow the site labels"):
+        mantel(x, y, strata=strata)
+    by_position = mantel(x, y, strata=strata.to_numpy())
+    by_label = mantel(x, y, strata=pd.Series([0, 0, 0, 1, 1, 1], index=pd.Index(labels)))
+    assert by_position.pvalue == by_label.pvalue  # the same assignment, said two clear ways

@@ -268,3 +268,54 @@ def test_thread_workers_survive_numba_workqueue_layer(tmp_path):
                           env=env, timeout=300)
     assert done.returncode == 0, done.stderr[-2000:]
     assert done.stdout.strip() == "ok"
+
+
+def test_nan_statistics_are_refused_not_counted_as_extreme():
+    # A NaN in the observed value or among the permuted ones would make every comparison
+    # False and the p-value its minimum; the engine refuses instead.
+    x = np.arange(12.0)
+    y = np.random.default_rng(0).normal(size=12)
+    plan = permutation_plan(12, n_resamples=99, rng=1)
+
+    def broken(orders):
+        out = y[orders] @ x
+        if len(orders) > 1:
+            out[3] = np.nan
+        return out
+
+    with pytest.raises(InputError, match=r"not a number \(NaN\) for 1 of 99"):
+        permutation_test(broken, plan)
+    with pytest.raises(InputError, match="observed statistic is not a number"):
+        permutation_test(lambda o: y[o] @ x, plan, observed=np.nan)
+
+
+def test_exact_test_counts_the_identity_even_when_the_batched_formula_drifts():
+    # Exact enumeration lists the identity first, and it is the observed arrangement, so the
+    # exact p-value is at least 1/N (theory) even if the batched statistic of the identity
+    # differs from the directly computed observed value by more than the tie tolerance.
+    x = np.arange(5.0)
+    y = np.array([-1.2, -0.4, 0.3, 0.8, 2.0])  # sorted like x: the identity is the maximum
+    plan = permutation_plan(5, n_resamples=999, rng=0)
+    res = permutation_test(lambda o: y[o] @ x - 1e-6 * (o == np.arange(5)).all(axis=1),
+                           plan, observed=float(y @ x))
+    assert res.exact and res.pvalue == pytest.approx(1 / 120)
+    assert res.null_distribution[0] == pytest.approx(y @ x)
+
+
+def test_more_arguments_named():
+    with pytest.raises(InputError, match="site_labels` must give one label per site"):
+        permutation_plan(5, n_resamples=999, site_labels=list("abcd"))
+    with pytest.raises(InputError, match="site_labels` repeats 'a'"):
+        permutation_plan(6, n_resamples=10, site_labels=list("abcdea"))
+    with pytest.raises(InputError, match="batch_size"):
+        permutation_plan(6, n_resamples=10, batch_size=True)
+    with pytest.raises(InputError, match="n_jobs"):
+        permutation_test(lambda o: o[:, 0] * 1.0, permutation_plan(6, n_resamples=10, rng=0),
+                         n_jobs=0)
+
+
+def test_custom_draw_must_return_every_requested_row():
+    plan = custom_plan(lambda gen, k: gen.normal(size=(max(k - 1, 1), 3)), 3,
+                       n_resamples=50, rng=0)
+    with pytest.raises(InputError, match="holds 50 rearrangements but the statistic returned 49"):
+        permutation_test(lambda data: data.sum(axis=1), plan, observed=0.0)
