@@ -21,7 +21,7 @@ __all__ = [
     "NUMBER",
     "TEXT",
     "ParsedColumn",
-    "looks_like_decimal_comma",
+    "decimal_marks",
     "non_detect_hint",
     "parse_column",
 ]
@@ -57,19 +57,20 @@ class ParsedColumn:
         return int(np.count_nonzero(self.kinds == kind))
 
 
-def looks_like_decimal_comma(cells: pd.DataFrame) -> bool:
-    """True if text cells use a decimal comma (``0,5``) and none use a decimal point.
+def decimal_marks(cells: pd.DataFrame) -> tuple[list[tuple[int, object]], list[tuple[int, object]]]:
+    """Cells written with a decimal comma (``0,5``) and with a decimal point (``0.5``).
 
-    Only called for files whose delimiter is not a comma, where "0,5" cannot be two fields.
+    Returns two lists of (row position, column) pairs; censored cells (``<0,5``) count too.
     """
-    has_comma = False
+    comma: list[tuple[int, object]] = []
+    point: list[tuple[int, object]] = []
     for column in cells.columns:
         text = cells[column].astype("string").str.strip().str.lstrip("<").str.strip()
-        text = text.dropna()
-        if text.str.match(_DECIMAL_POINT_RE.pattern).any():
-            return False
-        has_comma = has_comma or bool(text.str.match(_DECIMAL_COMMA_RE.pattern).any())
-    return has_comma
+        is_point = text.str.match(_DECIMAL_POINT_RE.pattern).fillna(False).to_numpy(dtype=bool)
+        is_comma = text.str.match(_DECIMAL_COMMA_RE.pattern).fillna(False).to_numpy(dtype=bool)
+        point.extend((int(i), column) for i in np.flatnonzero(is_point))
+        comma.extend((int(i), column) for i in np.flatnonzero(is_comma))
+    return comma, point
 
 
 def _to_float(text: str, decimal_comma: bool) -> float:

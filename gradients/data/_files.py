@@ -19,7 +19,7 @@ from pathlib import Path
 import pandas as pd
 
 from .._errors import InputError, format_items
-from ._cells import looks_like_decimal_comma
+from ._cells import decimal_marks
 from ._log import Decision
 
 __all__ = ["RawTable", "read_file", "table_from_frame"]
@@ -257,7 +257,22 @@ def _read_text(path: Path, name: str, role: str, data: bytes) -> RawTable:
             file=name,
         ) from None
     frame, lines = _rows_to_frame(rows, numbers, name, role, "line")
-    decimal_comma = delimiter != "," and looks_like_decimal_comma(frame)
+    decimal_comma = False
+    if delimiter != ",":
+        comma, point = decimal_marks(frame)
+        if comma and point:
+            # one convention per file: which one a stray cell follows cannot be guessed, and
+            # reading either way would turn the other cells into text without a word
+            few, many = (point, "comma") if len(comma) >= len(point) else (comma, "point")
+            other = "point" if many == "comma" else "comma"
+            where = [f"line {lines[i]}, column {c!r} ({frame.iloc[i][c]!r})" for i, c in few[:5]]
+            raise InputError(
+                f"The {role} file {name!r} mixes decimal separators: {max(len(comma), len(point))} "
+                f"cell(s) use a decimal {many} but {len(few)} use a decimal {other}: "
+                f"{'; '.join(where)}{' ...' if len(few) > 5 else ''}. Write every number with "
+                f"the same separator (a decimal {many}, like the rest of the file).",
+                file=name, columns=sorted({str(c) for _, c in few}))
+        decimal_comma = bool(comma)
     if decimal_comma:
         log.append(
             Decision(

@@ -130,7 +130,12 @@ def _label(value: object) -> str | None:
         if float(value).is_integer():
             value = int(value)
     text = str(value).strip()
+    if _WHOLE_DECIMAL.fullmatch(text):  # "12.0" as written by a spreadsheet's CSV export
+        text = text.split(".")[0]
     return text or None
+
+
+_WHOLE_DECIMAL = re.compile(r"[+-]?\d+\.0+")
 
 
 @dataclass

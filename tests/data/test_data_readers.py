@@ -50,7 +50,17 @@ def test_semicolon_with_decimal_comma(tmp_path, community, environment):
 def test_decimal_comma_not_guessed_with_points(tmp_path, community):
     # a semicolon file that uses decimal points: "1,5" would be ambiguous, so it is refused
     write(tmp_path / "e.csv", "site;Cu;Zn\nS1;1.5;2\nS2;1,5;3\nS3;2.5;4\nS4;3.5;5\n")
-    with pytest.raises(InputError, match=r"site 'S2', column 'Cu': '1,5'.*line 3"):
+    with pytest.raises(InputError, match=r"mixes decimal separators.*1 use a decimal comma: "
+                                         r"line 3, column 'Cu' \('1,5'\)"):
+        read_survey(community, tmp_path / "e.csv")
+
+
+def test_one_decimal_point_in_a_decimal_comma_file_is_named(tmp_path, community):
+    # The other way round: a decimal-comma file with one stray point used to turn every
+    # column into text without a word; now the cell is named and the fix given.
+    write(tmp_path / "e.csv", "site;Cu;Zn\nS1;1,5;2,1\nS2;1,25;3,0\nS3;118.97;4,2\nS4;3,5;5,5\n")
+    with pytest.raises(InputError, match=r"1 use a decimal point: line 4, column 'Cu' "
+                                         r"\('118.97'\).*a decimal comma, like the rest"):
         read_survey(community, tmp_path / "e.csv")
 
 
@@ -342,3 +352,13 @@ def test_bad_locations_in_files(tmp_path, locations, pattern):
     loc = write(tmp_path / "l.csv", locations)
     with pytest.raises(InputError, match=pattern):
         read_survey(c, None, loc)
+
+
+def test_site_ids_written_as_whole_decimals_in_text_match_integers(tmp_path):
+    # A spreadsheet's CSV export writes integer IDs as "1.0"; they match "1" elsewhere
+    # (documented in docs/data.md, "Site IDs").
+    write(tmp_path / "c.csv", "site,t1,t2\n1.0,1,2\n2.0,3,0\n3.0,2,2\n")
+    write(tmp_path / "e.csv", "site,pH\n1,7\n2,6.5\n3,6.9\n")
+    survey = read_survey(tmp_path / "c.csv", tmp_path / "e.csv")
+    assert list(survey.community.index) == ["1", "2", "3"]
+    assert list(survey.environment.index) == ["1", "2", "3"]
