@@ -311,6 +311,15 @@ def _cross_check(settings: dict[str, Any], hypotheses: dict[str, tuple[str, ...]
     if dup:
         raise InputError(f"`environment.compositions`: {format_items(dup)} are in more than one "
                          "composition.")
+    for comp in settings["environment.compositions"]:
+        homes = {seen[p] for p in comp if p in seen}
+        if len(homes) > 1 or (homes and any(p not in seen for p in comp)):
+            where = "; ".join(f"{p!r} in {seen[p]!r}" if p in seen else f"{p!r} in none"
+                              for p in comp)
+            raise InputError(
+                f"The composition {list(comp)} of `environment.compositions` is split between "
+                f"hypotheses ({where}): its parts are analysed together as log-ratios, so put "
+                "all of them in one hypothesis (or leave them all out).", columns=list(comp))
     both = sorted(set(parts) & set(settings["environment.log10"]))
     if both:
         raise InputError(f"{format_items(both)} are in both `environment.log10` and "

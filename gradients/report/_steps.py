@@ -176,6 +176,10 @@ def geography_step(ctx: Context) -> None:
     from ..distance import DistanceMatrix
 
     g = geographic_distance(ctx.survey.locations)
+    if not np.any(g.condensed > 0):
+        raise Skip("every site has the same location, so all distances between sites are "
+                   "zero: space was left out of every analysis. Check the coordinates in "
+                   "`[inputs] locations` (or the coordinate columns).")
     km = DistanceMatrix(g.condensed / 1000.0, g.labels, metric=g.metric, validate=False)
     ctx.results["geography"] = km
     ctx.methods.append(
@@ -394,14 +398,30 @@ def _spatial_kwargs(ctx: Context) -> dict[str, object]:
     return {"spatial_null": geo, "n_surrogates": ctx.n_resamples}
 
 
-def _attributed_notes(results: dict[str, Any]) -> list[str]:
+def _spatial_reason(ctx: Context) -> str:
+    """Why the report ran no spatially constrained test, in project-file words."""
+    if ctx.results.get("geography") is not None and ctx.settings["design.strata"]:
+        return ("Spatial autocorrelation was not checked: with `design.strata` set, the "
+                "spatially constrained null (Moran spectral randomisation), which does not keep "
+                "strata, is not computed. When both matrices are spatially structured, Mantel "
+                "p-values are too small (Guillot & Rousset 2013); read them with care.")
+    return ("Spatial autocorrelation was not checked because no usable site locations were "
+            "given (`[inputs] locations`). When both matrices are spatially structured, Mantel "
+            "p-values are too small (Guillot & Rousset 2013); add locations for a check and a "
+            "spatially constrained p-value.")
+
+
+def _attributed_notes(results: dict[str, Any], ctx: Context | None = None) -> list[str]:
     """Notes of several results, each said once, prefixed by the names it applies to.
 
-    A note that every result carries is given without a prefix.
+    A note that every result carries is given without a prefix. With ``ctx``, the analyses'
+    advice to pass locations to a Python argument is said in project-file words instead.
     """
     owners: dict[str, list[str]] = {}
     for name, res in results.items():
         for note in res.notes:
+            if ctx is not None and note.startswith("Spatial autocorrelation was not checked"):
+                note = _spatial_reason(ctx)
             names = owners.setdefault(note, [])
             if name not in names:
                 names.append(name)
@@ -446,7 +466,7 @@ def mantel_step(ctx: Context) -> None:
             "spatial autocorrelation gives ordinary Mantel tests.")
     sec.tables["mantel"] = table
     sec.shown.append("mantel")
-    sec.notes.extend(_attributed_notes(results))
+    sec.notes.extend(_attributed_notes(results, ctx))
     ctx.sections.append(sec)
     ctx.methods.append(
         "Mantel tests (Mantel 1967; Pearson r, sites permuted) of community dissimilarity "
@@ -491,7 +511,7 @@ def partial_mantel_step(ctx: Context) -> None:
         "Legendre (2000) recommends for partial Mantel tests.")
     sec.tables["partial_mantel"] = table
     sec.shown.append("partial_mantel")
-    sec.notes.extend(_attributed_notes(results))
+    sec.notes.extend(_attributed_notes(results, ctx))
     ctx.sections.append(sec)
     ctx.methods.append(
         "Partial Mantel tests (Smouse, Long & Sokal 1986) of each hypothesis controlling for "

@@ -128,3 +128,16 @@ def test_example_project_is_valid() -> None:
     survey, project = check_project(root / "examples" / "corvanne" / "project.toml")
     assert survey.community.shape == (60, 40)
     assert project["output.folder"] == (root / "corvanne-report").resolve()
+
+
+def test_composition_split_between_hypotheses_is_refused(tables: Path) -> None:
+    # docs/project-file.md: all parts of a composition must be in the same hypothesis; the
+    # run used to skip every hypothesis test instead.
+    text = (BASE + '[environment]\ncompositions = [["sand", "silt", "clay"]]\n'
+            '[hypotheses]\na = ["sand", "silt"]\nb = ["clay", "x"]\n')
+    with pytest.raises(InputError, match=r"split between hypotheses \('sand' in 'a'; 'silt' "
+                                         r"in 'a'; 'clay' in 'b'\)"):
+        load_project(write(tables, text))
+    ok = BASE + ('[environment]\ncompositions = [["sand", "silt", "clay"]]\n'
+                 '[hypotheses]\na = ["sand", "silt", "clay"]\nb = ["x"]\n')
+    assert load_project(write(tables, ok)).hypotheses["a"] == ("sand", "silt", "clay")

@@ -42,6 +42,10 @@ def test_pcoa_with_strata_and_covariables(small, tmp_path: Path) -> None:
     assert verdicts["caveats"].str.contains("small sample \\(18 sites\\)").all()
     assert "permuting sites within habitat" in outcome.methods
     assert "Sites per habitat:" in outcome.methods
+    # the missing spatial p-values are explained in project-file words, not Python arguments
+    notes = [n for sec in outcome.sections for n in sec.notes]
+    assert any("with `design.strata` set, the spatially constrained null" in n for n in notes)
+    assert not any("spatial_null=" in n for n in notes)
     folder = write_report(outcome, tmp_path / "r")
     assert (folder / "sites.gpkg").is_file()
 
@@ -81,3 +85,20 @@ def test_switched_off_analyses_leave_no_trace(small, tmp_path: Path) -> None:
                       hypotheses={"metals": ("Cu",)})
     assert [s.key for s in outcome.sections] == ["ordination"]
     assert outcome.skipped == [] and outcome.summary == []
+
+
+def test_sites_at_one_location_leave_space_out_not_the_hypotheses(small, tmp_path: Path) -> None:
+    # Every site at the same coordinates: distances in space are all zero, so space is left
+    # out with the reason, and the hypothesis tests still run.
+    import geopandas as gpd
+    from shapely.geometry import Point
+
+    community, env, locations = small
+    same = gpd.GeoDataFrame(index=locations.index, geometry=[Point(9.4, 61.1)] * len(locations),
+                            crs=locations.crs)
+    survey = Survey(community, env, same, censored="half-limit")
+    outcome = analyse(survey, settings={"permutations.count": 19, "analyses.starts": 2},
+                      hypotheses={"metals": ("Cu", "Zn", "Pb")})
+    keys = {s.key for s in outcome.sections}
+    assert {"verdicts", "mantel", "regression"} <= keys
+    assert "every site has the same location" in dict(outcome.skipped)["geography"]
