@@ -637,7 +637,7 @@ def _curvature_statistic(x, penalty, y, t, criterion, grid, smoothing):
 
 def _verdict(edf: float, gcv_plane: float, gcv_smooth: float, p: float, kind: str,
              dexp: float, p_curvature: float = np.nan) -> str:
-    detail = f"edf = {format_value(edf)}, deviance explained = {format_value(dexp)}"
+    detail = f"edf = {edf:.1f}, deviance explained = {100 * dexp:.0f} %"
     if np.isfinite(p) and p > VERDICT_ALPHA:
         return (f"no clear response: the surface is not distinguishable from a flat one "
                 f"({kind} p = {format_value(p)}; {detail})")

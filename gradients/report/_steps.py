@@ -162,9 +162,19 @@ def environment_step(ctx: Context) -> None:
             f"The composition {', '.join(comp)} was expressed as isometric log-ratio "
             "coordinates (Egozcue et al. 2003) because its parts sum to a constant.")
     if distances:
-        ctx.methods.append(
-            "For each hypothesis, environmental distances between sites were Euclidean "
-            "distances of its z-scored variables (in the units above).")
+        every = {**distances, **({"covariables": ctx.results["covariables"]} if cov else {})}
+        gower = [n for n, d in every.items() if d.metric == "gower"]
+        euclid = [n for n in every if n not in gower]
+        if euclid:
+            which = "each hypothesis" if not gower else format_items(euclid, quote=False)
+            ctx.methods.append(
+                f"For {which}, environmental distances between sites were Euclidean distances "
+                "of the z-scored variables (in the units above).")
+        if gower:
+            ctx.methods.append(
+                f"For {format_items(gower, quote=False)} (with categorical variables), "
+                "environmental distances were Gower's (1971) dissimilarity, which compares "
+                "numbers by their range and categories by match or mismatch.")
 
 
 @step("geography", required=True)

@@ -102,3 +102,14 @@ def test_sites_at_one_location_leave_space_out_not_the_hypotheses(small, tmp_pat
     keys = {s.key for s in outcome.sections}
     assert {"verdicts", "mantel", "regression"} <= keys
     assert "every site has the same location" in dict(outcome.skipped)["geography"]
+
+
+def test_methods_name_gower_for_a_hypothesis_with_categories(small) -> None:
+    community, env, locations = small
+    survey = Survey(community, env, locations, censored="half-limit")
+    outcome = analyse(survey, settings={"permutations.count": 9, "analyses.starts": 2,
+                                        "analyses.surfaces": False, "environment.factors": ()},
+                      hypotheses={"metals": ("Cu", "Zn"), "site_type": ("habitat", "pH")})
+    assert "For metals, environmental distances between sites were Euclidean" in outcome.methods
+    assert "For site_type (with categorical variables), environmental distances were Gower" \
+        in outcome.methods
