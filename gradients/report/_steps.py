@@ -100,7 +100,16 @@ def _analysis_environment(ctx: Context) -> pd.DataFrame:
     logs = [v for v in ctx.settings["environment.log10"] if v in env.columns]
     if not logs:
         return env
-    res = transform_environment(env, {v: "log10" for v in logs})
+    try:
+        res = transform_environment(env, {v: "log10" for v in logs})
+    except InputError as exc:
+        if "log10 needs positive values" not in str(exc):
+            raise
+        head = str(exc).split(". Pass offset=")[0]
+        raise InputError(
+            f"{head}. Remove the column from `[environment] log10`, or correct those values in "
+            "the environmental table (a value below detection is written as '<limit').",
+            sites=exc.sites, columns=exc.columns) from None
     ctx.results["log10"] = res
     out = res.table.copy()
     out.columns = [f"log10({c})" if c in logs else c for c in out.columns]

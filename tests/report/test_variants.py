@@ -113,3 +113,16 @@ def test_methods_name_gower_for_a_hypothesis_with_categories(small) -> None:
     assert "For metals, environmental distances between sites were Euclidean" in outcome.methods
     assert "For site_type (with categorical variables), environmental distances were Gower" \
         in outcome.methods
+
+
+def test_zero_before_log10_names_the_project_key(small) -> None:
+    from gradients import InputError
+
+    community, env, locations = small
+    env = env.copy()
+    env.iloc[2, env.columns.get_loc("Zn")] = 0.0
+    survey = Survey(community, env, locations, censored="half-limit")
+    with pytest.raises(InputError, match=r"column 'Zn' has 1 zero.*Remove the column from "
+                                         r"`\[environment\] log10`"):
+        analyse(survey, settings={"permutations.count": 9, "environment.log10": ("Zn",)},
+                hypotheses={"metals": ("Zn",)})
