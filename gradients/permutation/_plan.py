@@ -304,11 +304,7 @@ def _canonical_groups(scheme: str, n: int, groups: tuple[np.ndarray, ...],
     carried back to the given order: the drawn rearrangement of the data is the same whatever
     order the sites come in.
     """
-    labels = pd.Index(site_labels)
-    if len(labels) != n:
-        raise InputError(f"`site_labels` must give one label per site: {len(labels)} labels "
-                         f"for {n} sites.")
-    rank = site_ranks(labels)
+    rank = site_ranks(site_labels)  # length and uniqueness checked by permutation_plan
     if scheme == "free":
         return (np.argsort(rank).astype(np.intp),)
     values = pd.Series(strata).reset_index(drop=True) if not isinstance(strata, pd.Series) \
