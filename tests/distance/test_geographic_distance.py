@@ -17,7 +17,8 @@ def _dms(d, m, s):
     return d + m / 60 + s / 3600
 
 
-# Vincenty 1975 worked example as printed in the GDA technical manual (METHODS.md)
+# Worked example of Vincenty (1975, Survey Review 23:88), as printed in the ICSM Geocentric Datum
+# of Australia (GDA) Technical Manual: Flinders Peak to Buninyong on GRS80
 FLINDERS = (_dms(144, 25, 29.52440), -_dms(37, 57, 3.72030))
 BUNINYONG = (_dms(143, 55, 35.38390), -_dms(37, 39, 10.15610))
 

@@ -77,7 +77,7 @@ def test_exact_enumeration_n6_matches_listing_all_720_permutations(alternative):
 
 
 def test_exact_null_mean_of_pearson_statistic_is_zero():
-    # Theory (Mantel 1967; METHODS.md): over all n! permutations the mean cross-product is
+    # Theory (Mantel 1967, Cancer Res. 27:209): over all n! permutations the mean cross-product is
     # (sum x)(sum y)/m, so the mean of the centred statistic r is exactly 0.
     for seed in range(3):
         x, y = _pair(7, seed)  # 7! = 5040 permutations, all enumerated
@@ -99,7 +99,7 @@ def test_exact_kendall_n6_matches_listing_with_scipy():
 
 
 def test_kernels_equal_the_textbook_one_permutation_formula():
-    # Two ways of computing the same thing (STYLE.md 10): the batched kernels against
+    # Two ways of computing the same thing must agree (common practice): the batched kernels against
     # building each permuted matrix with np.ix_ for random orders.
     rng = np.random.default_rng(11)
     n = 40

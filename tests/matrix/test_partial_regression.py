@@ -188,7 +188,7 @@ def test_early_stop_two_sided_partial_needs_a_known_centre():
 
 
 def test_inputs_come_back_unchanged():
-    # STYLE.md 10: analyses must not modify their inputs.
+    # Common practice: analyses must not modify their inputs.
     x, y, z, _ = _matrices(10, 2)
     frames = [m.to_frame() for m in (x, y, z)]
     copies = [f.copy() for f in frames]
