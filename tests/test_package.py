@@ -1,5 +1,6 @@
 """Package-level checks: the public names resolve, the stage order holds, the README quick
-start and CI agree, and the version is single-sourced."""
+start and CI agree, the version is single-sourced, and docs/references.md covers every public
+name with tests that exist."""
 
 from __future__ import annotations
 
@@ -88,3 +89,72 @@ def test_readme_quick_start_has_two_commands_and_ci_runs_the_test_one():
     assert "pytest" in test
     ci = (ROOT / ".ci" / "run").read_text(encoding="utf-8")
     assert test in ci.splitlines() or any(line.strip() == test for line in ci.splitlines())
+
+
+# ------------------------------------------------------------------ docs/references.md
+REFERENCES = ROOT / "docs" / "references.md"
+_SECTION = re.compile(r"^###\s+`([^`]+)`\s*$")
+_TEST_REF = re.compile(r"`(tests/[^`:\s]+\.py)::([A-Za-z_]\w*(?:::[A-Za-z_]\w*)?)`")
+
+
+def _reference_sections() -> dict[str, list[tuple[int, str, str]]]:
+    """Section name -> the (line number, file, test) entries listed under it."""
+    sections: dict[str, list[tuple[int, str, str]]] = {}
+    current = None
+    for number, line in enumerate(REFERENCES.read_text(encoding="utf-8").splitlines(), 1):
+        heading = _SECTION.match(line)
+        if heading:
+            current = heading.group(1)
+            sections.setdefault(current, [])
+        elif line.startswith("#"):
+            current = None
+        elif current is not None:
+            sections[current].extend((number, f, name) for f, name in _TEST_REF.findall(line))
+    return sections
+
+
+def _test_names(path: Path) -> set[str]:
+    """Test functions of a file: ``name`` at top level, ``Class::name`` in classes."""
+    tree = ast.parse(path.read_text(encoding="utf-8"))
+    names = set()
+    for node in tree.body:
+        if isinstance(node, ast.FunctionDef | ast.AsyncFunctionDef):
+            names.add(node.name)
+        elif isinstance(node, ast.ClassDef):
+            names.update(f"{node.name}::{item.name}" for item in node.body
+                         if isinstance(item, ast.FunctionDef | ast.AsyncFunctionDef))
+    return names
+
+
+def test_references_cover_every_public_name():
+    sections = _reference_sections()
+    public = [*sorted(gradients._EXPORTS)]
+    if (PACKAGE / "plot").is_dir():
+        public.append("plot")
+    missing = [n for n in public if n not in sections and f"gradients.{n}" not in sections]
+    assert not missing, (
+        f"docs/references.md has no '### `name`' section for public name(s) {missing}; add one "
+        "listing the outside checks (source, test, tolerance) that back each")
+    empty = [n for n, refs in sections.items() if not refs]
+    assert not empty, (
+        f"docs/references.md sections {empty} name no test; cite at least one as "
+        "`tests/<path>.py::<test_function>`")
+
+
+def test_references_name_existing_tests():
+    every: dict[str, list[str]] = {}  # test name -> files defining it, for the hints
+    for path in sorted((ROOT / "tests").rglob("test_*.py")):
+        for name in _test_names(path):
+            every.setdefault(name, []).append(path.relative_to(ROOT).as_posix())
+    problems = []
+    for section, refs in _reference_sections().items():
+        for number, file, name in refs:
+            path = ROOT / file
+            if path.is_file() and name in _test_names(path):
+                continue
+            where = every.get(name)
+            hint = f"; a test of that name is in {', '.join(where)}" if where else ""
+            reason = "has no such test" if path.is_file() else "does not exist"
+            problems.append(f"docs/references.md:{number} (section `{section}`) cites "
+                            f"{file}::{name}, but {file} {reason}{hint}")
+    assert not problems, "\n".join(problems)
