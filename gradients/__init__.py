@@ -10,9 +10,10 @@ stages before it, and ``fitting`` and ``matrix`` never import each other::
 
 ``data`` reads and checks the survey; ``distance`` builds dissimilarities and distances;
 ``ordination`` gives site scores (PCoA, NMDS, PCA); ``permutation`` is the one engine behind
-every permutation test; ``fitting`` puts environmental variables onto ordination space; ``matrix`` holds the
-Mantel family; ``plot`` draws figures from result objects; ``report`` runs a project and writes
-its folder. ``gradients.cli`` parses the command line and calls ``report``.
+every permutation test; ``fitting`` puts environmental variables onto ordination space;
+``matrix`` holds the Mantel family; ``plot`` draws figures from result objects; ``report`` runs
+a project and writes its folder. ``gradients.cli`` parses the command line and calls
+``report``.
 """
 
 from __future__ import annotations
