@@ -37,6 +37,7 @@ KNOWN_CYCLES: dict[frozenset[str], str] = {
         "issue 11, item 4: _scores accepts anything with a .scores table",
 }
 
+
 def test_version_single_sourced():
     meta = tomllib.loads((ROOT / "pyproject.toml").read_text())
     assert gradients.__version__ == meta["project"]["version"]
