@@ -67,8 +67,8 @@ def _rng_from(rng: Any, seed: Any, stacklevel: int) -> Any:
     """
     if seed is _NOT_GIVEN:
         return rng
-    # `rng` keeps its default object unless the caller passed one (any other value, even an
-    # equal int, is another object)
+    # `rng` is the default object itself unless the caller passed one: an int the caller wrote,
+    # even one equal to the default, is another object (only `rng=DEFAULT_SEED` reads as unset)
     if rng is not DEFAULT_SEED:
         raise InputError("Pass `rng=` or the deprecated `seed=`, not both (use `rng=` alone).")
     warnings.warn(
