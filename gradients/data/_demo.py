@@ -2,12 +2,16 @@
 
 Run ``python -m gradients.data._demo`` to write the bundled files again (into
 ``gradients/data/demo/``); a test checks that they equal what the generator makes with the
-default seed.
+default seed. Randomness follows the suite's rule (``rng=``: an int, a ``numpy.random.Generator``
+or None, SPEC 7); the former ``seed=`` keyword is accepted for one release with a
+``DeprecationWarning``.
 """
 
 from __future__ import annotations
 
+import numbers
 import os
+import warnings
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -16,6 +20,7 @@ import numpy as np
 import pandas as pd
 
 from .._errors import InputError
+from .._validation import check_rng
 from ._survey import Survey, read_survey
 
 __all__ = ["DEFAULT_SEED", "DEMO_DIR", "DemoScenario", "demo_survey", "simulate_survey"]
@@ -44,6 +49,49 @@ SPATIAL_RANGE_KM = 3.0
 NB_SIZE = 1.5
 
 
+class _NotGiven:
+    """The default of a deprecated keyword: tells "not passed" apart from any value."""
+
+    def __repr__(self) -> str:
+        return "<deprecated>"
+
+
+_NOT_GIVEN: Any = _NotGiven()
+
+
+def _rng_from(rng: Any, seed: Any, stacklevel: int) -> Any:
+    """The `rng` to use, taking the deprecated `seed` keyword for one release.
+
+    `seed` given: a ``DeprecationWarning`` (pointing at the caller's line), an error if `rng`
+    was given as well, and the old check of `seed` with its old message.
+    """
+    if seed is _NOT_GIVEN:
+        return rng
+    # `rng` is the default object itself unless the caller passed one: an int the caller wrote,
+    # even one equal to the default, is another object (only `rng=DEFAULT_SEED` reads as unset)
+    if rng is not DEFAULT_SEED:
+        raise InputError("Pass `rng=` or the deprecated `seed=`, not both (use `rng=` alone).")
+    warnings.warn(
+        "`seed=` is deprecated and will be removed in the next release; pass `rng=` instead "
+        "(an int gives the same survey as the same `seed`).",
+        DeprecationWarning, stacklevel=stacklevel + 1,
+    )
+    if not isinstance(seed, int | np.integer) or seed < 0:
+        raise InputError(f"`seed` must be a non-negative integer; got {seed!r}.")
+    return int(seed)
+
+
+def _generator(rng: Any) -> tuple[np.random.Generator, int | None]:
+    """(generator, the int seed that makes it again, or None for a Generator or SeedSequence)."""
+    if rng is None:  # fresh entropy from the operating system, kept so the survey can be remade
+        seed = int(np.random.SeedSequence().entropy)  # type: ignore[arg-type]
+        return check_rng(seed), seed
+    if isinstance(rng, numbers.Integral) and not isinstance(rng, bool):
+        generator = check_rng(int(rng))  # refuses negative ints with the suite's message
+        return generator, int(rng)
+    return check_rng(rng), None
+
+
 @dataclass(frozen=True, repr=False)
 class DemoScenario:
     """A simulated survey with its planted truth.
@@ -66,8 +114,12 @@ class DemoScenario:
         Per taxon: optimum and tolerance on the contamination gradient and on the fine
         fraction, maximum expected count, spatial loadings, habitat effects, and whether the
         taxon was made rare.
-    seed : int
-        The seed that made it.
+    seed : int or None
+        The int seed that makes this scenario again (``simulate_survey(n_sites, n_taxa,
+        rng=seed)``): the int given as `rng`, or for ``rng=None`` the seed drawn from the
+        operating system's entropy. None when `rng` was a ``numpy.random.Generator`` (or a
+        ``SeedSequence``): the draws then depend on that object's state, which is the caller's
+        to keep.
     """
 
     community: pd.DataFrame
@@ -75,7 +127,7 @@ class DemoScenario:
     locations: Any
     site_truth: pd.DataFrame
     taxon_truth: pd.DataFrame
-    seed: int
+    seed: int | None
 
     def __repr__(self) -> str:
         return (f"DemoScenario(seed={self.seed}, sites={self.community.shape[0]}, "
@@ -128,7 +180,8 @@ def simulate_survey(
     n_sites: int = 60,
     n_taxa: int = 40,
     *,
-    seed: int = DEFAULT_SEED,
+    rng: int | np.random.Generator | None = DEFAULT_SEED,
+    seed: int = _NOT_GIVEN,
 ) -> DemoScenario:
     """Simulate the invented Corvanne Basin survey with a known, planted truth.
 
@@ -139,8 +192,15 @@ def simulate_survey(
         and the floodplain below their confluence (the floodplain takes the remainder).
     n_taxa : int, default 40
         Number of taxa (at least 5); the last 15% are made rare.
-    seed : int, default 20261202
-        Seed of the ``numpy.random.Generator`` (PCG64) that draws everything, in a fixed order.
+    rng : int, numpy.random.Generator or None, default 20261202
+        Source of randomness, as everywhere in the suite [1]_: an int seeds a new
+        ``numpy.random.Generator`` (PCG64), a Generator is used as it is (and advanced), None
+        draws a fresh seed from the operating system (recorded in ``DemoScenario.seed``). The
+        default gives the bundled demo files; the same int always gives the same survey.
+    seed : int, optional
+        Deprecated: the former name of `rng` (an int only), accepted for one release with a
+        ``DeprecationWarning``; ``seed=s`` gives exactly the survey of ``rng=s``. Passing both
+        is an error.
 
     Returns
     -------
@@ -197,15 +257,18 @@ def simulate_survey(
 
     Only ``Generator`` methods (uniform, normal, standard_normal, gamma, poisson, random) and
     a Cholesky factor are used, so the result depends only on the seed and numpy's PCG64
-    streams.
+    streams: ``rng=s`` and ``rng=numpy.random.default_rng(s)`` give the same survey.
+
+    References
+    ----------
+    .. [1] Scientific Python Ecosystem Coordination. SPEC 7: Seeding pseudo-random number
+       generation. https://scientific-python.org/specs/spec-0007/
     """
     if not isinstance(n_sites, int | np.integer) or n_sites < 9:
         raise InputError(f"`n_sites` must be an integer of at least 9; got {n_sites!r}.")
     if not isinstance(n_taxa, int | np.integer) or n_taxa < 5:
         raise InputError(f"`n_taxa` must be an integer of at least 5; got {n_taxa!r}.")
-    if not isinstance(seed, int | np.integer) or seed < 0:
-        raise InputError(f"`seed` must be a non-negative integer; got {seed!r}.")
-    rng = np.random.default_rng(int(seed))
+    rng, made_from = _generator(_rng_from(rng, seed, stacklevel=2))
 
     # -- sites ------------------------------------------------------------------------------
     n_fb = n_aw = n_sites // 3
@@ -320,20 +383,30 @@ def simulate_survey(
         **{f"effect_{h}": habitat_effect[i] for i, h in enumerate(HABITATS)},
         "rare": rare,
     }, index=pd.Index(taxa, name="taxon", dtype=object))
-    return DemoScenario(community, environment, locations, site_truth, taxon_truth, int(seed))
+    return DemoScenario(community, environment, locations, site_truth, taxon_truth, made_from)
 
 
-def demo_survey(seed: int = DEFAULT_SEED, *, censored: str = "ros") -> Survey:
+def demo_survey(
+    rng: int | np.random.Generator | None = DEFAULT_SEED,
+    *,
+    censored: str = "ros",
+    seed: int = _NOT_GIVEN,
+) -> Survey:
     """The demo survey of the invented Corvanne Basin (see :func:`simulate_survey`).
 
     Parameters
     ----------
-    seed : int, default 20261202
+    rng : int, numpy.random.Generator or None, default 20261202
         With the default seed the bundled files in ``gradients/data/demo/`` are read (through
         :func:`read_survey`, so the demo also exercises the CSV and GeoPackage readers); any
-        other seed simulates a new survey of 60 sites and 40 taxa.
+        other int, a Generator or None simulates a new survey of 60 sites and 40 taxa (see
+        `rng` of :func:`simulate_survey`).
     censored : str, default "ros"
         Policy for the cadmium values below the detection limit (see :class:`Survey`).
+    seed : int, optional
+        Deprecated: the former name of `rng`, accepted for one release with a
+        ``DeprecationWarning`` (as a keyword; a first positional argument is `rng`, which
+        means the same). Passing both is an error.
 
     Returns
     -------
@@ -345,10 +418,13 @@ def demo_survey(seed: int = DEFAULT_SEED, *, censored: str = "ros") -> Survey:
     >>> demo_survey().n_sites
     60
     """
-    if seed == DEFAULT_SEED:
+    rng = _rng_from(rng, seed, stacklevel=2)
+    bundled = (isinstance(rng, numbers.Integral) and not isinstance(rng, bool)
+               and int(rng) == DEFAULT_SEED)
+    if bundled:
         return read_survey(DEMO_DIR / "community.csv", DEMO_DIR / "environment.csv",
                            DEMO_DIR / "locations.gpkg", censored=censored)
-    return simulate_survey(seed=seed).survey(censored=censored)
+    return simulate_survey(rng=rng).survey(censored=censored)
 
 
 if __name__ == "__main__":  # pragma: no cover - writes the bundled files

@@ -124,7 +124,7 @@ def run_demo(out: str | Path, *, force: bool = False, n_resamples: int = DEMO_PE
     OutputFolder(out, force=force)  # refuse early
     project = project_from_dict(demo_settings(n_resamples, seed, Path(out)))
     survey = demo_survey(censored=project["inputs.below_detection"])
-    truth = simulate_survey(seed=DEFAULT_SEED)
+    truth = simulate_survey(rng=DEFAULT_SEED)
     inputs = {name.split(".")[0]: DEMO_DIR / name
               for name in ("community.csv", "environment.csv", "locations.gpkg")}
     settings = {**project.settings, **(overrides or {})}

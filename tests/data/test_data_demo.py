@@ -42,19 +42,23 @@ def test_demo_survey_reads_bundled_files(scenario):
 
 
 def test_seeded_and_deterministic():
-    a, b = simulate_survey(n_sites=12, n_taxa=6, seed=3), simulate_survey(n_sites=12, n_taxa=6,
-                                                                          seed=3)
+    a, b = simulate_survey(n_sites=12, n_taxa=6, rng=3), simulate_survey(n_sites=12, n_taxa=6,
+                                                                         rng=3)
     pd.testing.assert_frame_equal(a.community, b.community)
     pd.testing.assert_frame_equal(a.environment, b.environment)
-    c = simulate_survey(n_sites=12, n_taxa=6, seed=4)
+    c = simulate_survey(n_sites=12, n_taxa=6, rng=4)
     assert not a.community.equals(c.community)
-    assert demo_survey(seed=5, censored="half-limit").n_sites == 60
+    assert demo_survey(rng=5, censored="half-limit").n_sites == 60
 
 
 def test_bad_arguments():
     with pytest.raises(InputError, match="`n_sites` must be an integer of at least 9"):
         simulate_survey(n_sites=3)
-    with pytest.raises(InputError, match="`seed` must be a non-negative integer"):
+    with pytest.raises(InputError, match="`rng` must be a non-negative integer seed"):
+        simulate_survey(rng=-1)
+    # the deprecated keyword keeps its own check and message for its last release
+    with pytest.warns(DeprecationWarning), pytest.raises(
+            InputError, match="`seed` must be a non-negative integer"):
         simulate_survey(seed=-1)
 
 

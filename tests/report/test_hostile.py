@@ -30,7 +30,7 @@ def hostile_report(tmp_path_factory: pytest.TempPathFactory) -> tuple[Path, Path
     root = tmp_path_factory.mktemp("hostile")
     work = root / "project"
     work.mkdir()
-    truth = simulate_survey(n_sites=24, n_taxa=12, seed=5)
+    truth = simulate_survey(n_sites=24, n_taxa=12, rng=5)
     rename_sites = dict(zip(truth.community.index[:3], [FORMULA, UP, SCRIPT], strict=True))
     community = truth.community.rename(index=rename_sites)
     community = community.rename(columns={community.columns[0]: SCRIPT,

@@ -18,7 +18,7 @@ from gradients.report import analyse, write_report
 
 @pytest.fixture(scope="module")
 def small() -> tuple[pd.DataFrame, pd.DataFrame, object]:
-    truth = simulate_survey(n_sites=18, n_taxa=10, seed=11)
+    truth = simulate_survey(n_sites=18, n_taxa=10, rng=11)
     env = truth.environment.set_index("site")
     return truth.community, env, truth.locations
 
