@@ -9,8 +9,14 @@ import numpy as np
 import pandas as pd
 
 from .._errors import InputError, format_items
-from .._validation import check_choice, check_labels_match, check_unambiguous_series
-from ..permutation import ADJUST_METHODS, permutation_plan, permutation_test, seed_sequence
+from .._validation import (
+    align_strata,
+    check_choice,
+    check_labels_match,
+    check_unambiguous_series,
+    seed_sequence,
+)
+from ..permutation import ADJUST_METHODS, permutation_plan, permutation_test
 from ..permutation import adjust_pvalues as _adjust
 
 __all__ = [
@@ -82,8 +88,9 @@ class Design:
     @classmethod
     def build(cls, sites: pd.Index, *, scheme: str | None, strata: object, blocks: object,
               shape: tuple[int, int] | None) -> Design:
-        return cls(n_sites=len(sites), scheme=scheme, strata=_labels(strata, sites, "strata"),
-                   blocks=_labels(blocks, sites, "blocks"),
+        return cls(n_sites=len(sites), scheme=scheme,
+                   strata=align_strata(strata, sites, name="strata", sites_name="`scores`"),
+                   blocks=align_strata(blocks, sites, name="blocks", sites_name="`scores`"),
                    shape=tuple(shape) if shape is not None else None,  # type: ignore[arg-type]
                    sites=sites)
 
@@ -112,26 +119,6 @@ class Design:
         return permutation_plan(n, scheme, strata=strata, shape=self.shape, blocks=blocks,
                                 n_resamples=n_resamples, rng=rng, batch_size=batch_size,
                                 site_labels=sites)
-
-
-def _labels(values: object, sites: pd.Index, name: str) -> np.ndarray | None:
-    if values is None:
-        return None
-    if isinstance(values, pd.Series):
-        check_unambiguous_series(values, sites, name)
-        check_labels_match(sites, values.index, left_name="`scores`", right_name=f"`{name}`",
-                           fix=f"Give `{name}` one label per site, indexed by site label.")
-        out = values.loc[sites]
-    else:
-        out = pd.Series(list(values) if not isinstance(values, np.ndarray) else values)
-        if len(out) != len(sites):
-            raise InputError(f"`{name}` must give one label per site: {len(out)} labels for "
-                             f"{len(sites)} sites.")
-    if out.isna().any():
-        bad = sites[out.isna().to_numpy()]
-        raise InputError(f"`{name}` is missing for site(s) {format_items(bad)}.",
-                         sites=list(bad))
-    return out.to_numpy(dtype=object)
 
 
 @dataclass(frozen=True)

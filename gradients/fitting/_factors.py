@@ -9,7 +9,7 @@ import pandas as pd
 
 from .._errors import InputError, format_items
 from .._result import ResultMixin
-from .._validation import check_alternative, check_n_resamples
+from .._validation import RNGLike, check_alternative, check_n_jobs, check_n_resamples, seed_sequence
 from ._common import (
     ADJUST_METHODS,
     Design,
@@ -98,7 +98,7 @@ def fit_factors(
     axes: AxesLike = None,
     n_resamples: int = 999,
     alternative: str = "greater",
-    rng: object = None,
+    rng: RNGLike = None,
     strata: object = None,
     scheme: str | None = None,
     blocks: object = None,
@@ -165,6 +165,8 @@ def fit_factors(
     """
     n_resamples = check_n_resamples(n_resamples)
     alternative = check_alternative(alternative)
+    n_jobs = check_n_jobs(n_jobs)
+    root = seed_sequence(rng)
     if adjust is not None and adjust not in ADJUST_METHODS:
         raise InputError(f"`adjust` must be one of 'holm', 'fdr_bh' or None; got {adjust!r}.")
     sc = site_scores(scores, axes)
@@ -222,7 +224,7 @@ def fit_factors(
 
         return statistic
 
-    outcome = run_by_pattern(factory, masks, design, n_resamples=n_resamples, rng=rng,
+    outcome = run_by_pattern(factory, masks, design, n_resamples=n_resamples, rng=root,
                              alternative=alternative, n_jobs=n_jobs)
     adjusted = adjust_pvalues(outcome.pvalue, adjust)
     n_used = masks.sum(axis=0)

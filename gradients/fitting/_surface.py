@@ -10,8 +10,7 @@ import pandas as pd
 
 from .._errors import InputError, format_items
 from .._result import format_value
-from .._validation import check_choice, check_n_resamples
-from ..permutation import seed_sequence
+from .._validation import RNGLike, check_choice, check_n_jobs, check_n_resamples, seed_sequence
 from ._common import Design, align_table, missing_masks
 from ._scores import site_scores
 from ._surface_result import SurfaceFit, prediction_grid
@@ -97,7 +96,7 @@ def fit_surface(
     family: str = "gaussian",
     method: str = "gcv",
     n_resamples: int = 999,
-    rng: object = None,
+    rng: RNGLike = None,
     strata: object = None,
     scheme: str | None = None,
     blocks: object = None,
@@ -231,6 +230,8 @@ def fit_surface(
                          "'reml'.")
     criterion = "ubre" if (method == "gcv" and family != "gaussian") else method
     n_resamples = check_n_resamples(n_resamples, allow_zero=True)
+    n_jobs = check_n_jobs(n_jobs)
+    plan_seed = seed_sequence(rng)
     if isinstance(axes, str) or len(axes) != 2:
         raise InputError(f"`axes` must name exactly two score columns; got {axes!r}.")
     if not isinstance(grid_size, numbers.Integral) or not 5 <= grid_size <= 1000:
@@ -299,7 +300,6 @@ def fit_surface(
 
     # permutation tests: the response against a constant, then (Gaussian) the curvature, from
     # a stream of its own (a spawn key that no batch of the first plan reaches)
-    plan_seed = seed_sequence(rng)
     plan_seed_curvature = np.random.SeedSequence(
         plan_seed.entropy, spawn_key=(*plan_seed.spawn_key, _CURVATURE_STREAM),
         pool_size=plan_seed.pool_size)

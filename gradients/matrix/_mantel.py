@@ -15,7 +15,6 @@ from ..permutation import PermutationPlan
 from ._inputs import (
     MatrixLike,
     align_matrices,
-    align_strata,
     build_plan,
     rank_condensed,
     standardise,
@@ -216,7 +215,7 @@ def mantel(
     n = len(labels)
     xv = mats["x"].condensed.astype(np.float64)
     yv = mats["y"].condensed.astype(np.float64)
-    plan = build_plan(n, scheme=scheme, strata=align_strata(strata, labels),
+    plan = build_plan(n, scheme=scheme, strata=strata,
                       n_resamples=n_resamples, rng=gen, labels=labels)
     if method == "kendall":
         observed, res = mantel_kendall(xv, yv, n, plan, alternative=alternative,

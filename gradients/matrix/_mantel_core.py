@@ -12,9 +12,9 @@ from collections.abc import Callable
 import numpy as np
 
 from .._errors import InputError
-from .._validation import check_alternative, check_n_resamples
+from .._validation import check_alternative, check_n_jobs, check_n_resamples
 from ..permutation import PermutationPlan, PermutationResult, permutation_test
-from ._inputs import check_jobs, rank_condensed, square_of, standardise
+from ._inputs import rank_condensed, square_of, standardise
 from ._kernels import cross_products, kendall_batch, kendall_prepare, numba_threads
 
 __all__ = [
@@ -35,7 +35,7 @@ KENDALL_MAX_WORK = 2.5e8
 
 def check_common(alternative: str, n_resamples: int, n_jobs: int,
                  n_surrogates: int) -> tuple[str, int, int, int]:
-    return (check_alternative(alternative), check_n_resamples(n_resamples), check_jobs(n_jobs),
+    return (check_alternative(alternative), check_n_resamples(n_resamples), check_n_jobs(n_jobs),
             check_n_resamples(n_surrogates))
 
 

@@ -15,7 +15,6 @@ from ..permutation import PermutationPlan
 from ._inputs import (
     MatrixLike,
     align_matrices,
-    align_strata,
     build_plan,
     control_matrices,
     rank_condensed,
@@ -258,7 +257,7 @@ n_surrogates
         res2 = np.maximum(vv - np.sum(c[:, 1:] ** 2, axis=1), 1e-300)
         return c[:, 0] / (ey_norm * np.sqrt(res2))
 
-    plan = build_plan(n, scheme=scheme, strata=align_strata(strata, labels),
+    plan = build_plan(n, scheme=scheme, strata=strata,
                       n_resamples=n_resamples, rng=gen, labels=labels)
     res = run_engine(statistic, plan, observed=observed, alternative=alternative, center=None,
                      early_stop=early_stop, n_jobs=n_jobs, task="partial Mantel test")

@@ -14,7 +14,7 @@ from scipy.spatial.distance import pdist
 
 from .._errors import InputError
 from .._result import ResultMixin
-from .._validation import check_choice, check_rng
+from .._validation import check_choice, check_n_jobs, check_rng
 from ..distance._matrix import DistanceMatrix, as_distance_matrix
 from ._common import axis_names, orient_columns
 from ._kernels import MonotoneOrder, StressFunction, stress_fit
@@ -124,13 +124,6 @@ def _check_tol(tol: object) -> float:
             or float(tol) <= 0):
         raise InputError(f"`tol` must be a positive number; got {tol!r}.")
     return float(tol)
-
-
-def _check_n_jobs(n_jobs: object) -> int:
-    ok = isinstance(n_jobs, numbers.Integral) and not isinstance(n_jobs, bool)
-    if not ok or int(n_jobs) == 0 or int(n_jobs) < -1:
-        raise InputError(f"`n_jobs` must be a positive integer or -1 (all cores); got {n_jobs!r}.")
-    return int(n_jobs)
 
 
 def _normalise(x: np.ndarray) -> np.ndarray:
@@ -301,7 +294,7 @@ def nmds(
     max_iter = _check_positive_int("max_iter", max_iter)
     tol = _check_tol(tol)
     check_choice("ties", ties, TIES)
-    n_jobs = _check_n_jobs(n_jobs)
+    n_jobs = check_n_jobs(n_jobs)
     generator = check_rng(rng)
     n = dm.n
     if n < p + 2:
