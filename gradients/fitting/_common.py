@@ -1,4 +1,4 @@
-"""Pieces shared by the three fits: aligning tables, building plans, running tests, adjusting."""
+"""Pieces shared by the three fits: scores and tables, building plans, running tests, adjusting."""
 
 from __future__ import annotations
 
@@ -16,22 +16,38 @@ from .._validation import (
     check_unambiguous_series,
     seed_sequence,
 )
+from ..ordination import as_scores
+from ..ordination._scores import AxesLike
 from ..permutation import ADJUST_METHODS, permutation_plan, permutation_test
 from ..permutation import adjust_pvalues as _adjust
 
 __all__ = [
     "ADJUST_METHODS",
+    "DEFAULT_AXES",
     "MISSING_RULES",
+    "AxesLike",
     "Design",
     "TestOutcome",
     "adjust_pvalues",
     "align_table",
     "check_weights",
+    "fit_scores",
     "missing_masks",
     "run_by_pattern",
 ]
 
 MISSING_RULES = ("error", "complete")
+#: The vector and factor fits use the first two axes unless told otherwise.
+DEFAULT_AXES = 2
+
+
+def fit_scores(scores: object, axes: AxesLike) -> pd.DataFrame:
+    """The site scores a fit works on: :func:`~gradients.ordination.as_scores` of the chosen axes.
+
+    With ``axes=None`` the first ``DEFAULT_AXES`` columns (or all, when there are fewer).
+    """
+    frame = as_scores(scores, axes=axes)
+    return frame.iloc[:, :DEFAULT_AXES] if axes is None else frame
 
 
 def align_table(table: object, sites: pd.Index, *, name: str) -> pd.DataFrame:

@@ -12,15 +12,16 @@ from .._result import ResultMixin
 from .._validation import RNGLike, check_alternative, check_n_jobs, check_n_resamples, seed_sequence
 from ._common import (
     ADJUST_METHODS,
+    AxesLike,
     Design,
     adjust_pvalues,
     align_table,
     check_weights,
+    fit_scores,
     missing_masks,
     run_by_pattern,
 )
 from ._kernels import class_sums_between
-from ._scores import AxesLike, site_scores
 
 __all__ = ["FactorFit", "fit_factors"]
 
@@ -169,7 +170,7 @@ def fit_factors(
     root = seed_sequence(rng)
     if adjust is not None and adjust not in ADJUST_METHODS:
         raise InputError(f"`adjust` must be one of 'holm', 'fdr_bh' or None; got {adjust!r}.")
-    sc = site_scores(scores, axes)
+    sc = fit_scores(scores, axes)
     fac = _categorical(align_table(factors, sc.index, name="factors"))
     masks = missing_masks(fac, missing, what="Factor")
     w_in = check_weights(weights, sc.index)

@@ -11,8 +11,7 @@ import pandas as pd
 from .._errors import InputError, format_items
 from .._result import format_value
 from .._validation import RNGLike, check_choice, check_n_jobs, check_n_resamples, seed_sequence
-from ._common import Design, align_table, missing_masks
-from ._scores import site_scores
+from ._common import Design, align_table, fit_scores, missing_masks
 from ._surface_result import SurfaceFit, prediction_grid
 from ._surface_stats import approx_pvalue, curvature_statistic, permutation_statistic, pseudo_f
 from ._tprs import (
@@ -241,7 +240,7 @@ def fit_surface(
         raise InputError(f"`basis_size` must be an integer of at least 5; got {basis_size!r}.")
     if smoothing is not None and not (isinstance(smoothing, numbers.Real) and smoothing >= 0):
         raise InputError(f"`smoothing` must be a non-negative number; got {smoothing!r}.")
-    sc_all = site_scores(scores, list(axes))
+    sc_all = fit_scores(scores, list(axes))
     series = _response(values, sc_all.index)
     name = str(series.name)
     mask = missing_masks(series.to_frame(name), missing, what="Surface")[:, 0]

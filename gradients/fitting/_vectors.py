@@ -13,15 +13,16 @@ from .._result import ResultMixin
 from .._validation import RNGLike, check_alternative, check_n_jobs, check_n_resamples, seed_sequence
 from ._common import (
     ADJUST_METHODS,
+    AxesLike,
     Design,
     adjust_pvalues,
     align_table,
     check_weights,
+    fit_scores,
     missing_masks,
     run_by_pattern,
 )
 from ._kernels import project_batch
-from ._scores import AxesLike, site_scores
 
 __all__ = ["VectorFit", "fit_vectors"]
 
@@ -297,7 +298,7 @@ def fit_vectors(
     root = seed_sequence(rng)
     if adjust is not None and adjust not in ADJUST_METHODS:
         raise InputError(f"`adjust` must be one of 'holm', 'fdr_bh' or None; got {adjust!r}.")
-    sc = site_scores(scores, axes)
+    sc = fit_scores(scores, axes)
     env = _numeric_environment(align_table(environment, sc.index, name="environment"))
     masks = missing_masks(env, missing, what="Environmental")
     w = check_weights(weights, sc.index)

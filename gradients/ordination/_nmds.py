@@ -18,6 +18,8 @@ from .._validation import check_choice, check_n_jobs, check_rng
 from ..distance._matrix import DistanceMatrix, as_distance_matrix
 from ._common import axis_names, orient_columns
 from ._kernels import MonotoneOrder, StressFunction, stress_fit
+from ._pcoa import pcoa
+from ._scores import as_scores, taxon_scores
 
 if TYPE_CHECKING:
     from numpy.typing import ArrayLike
@@ -108,8 +110,6 @@ class NMDSResult(ResultMixin):
 
     def taxon_scores(self, community: pd.DataFrame) -> pd.DataFrame:
         """Weighted-average taxon scores on these axes; see :func:`taxon_scores`."""
-        from ._scores import taxon_scores
-
         return taxon_scores(self, community)
 
 
@@ -137,8 +137,6 @@ def _initial(dm: DistanceMatrix, init: object, p: int,
              seed: np.random.SeedSequence) -> tuple[np.ndarray, str]:
     n = dm.n
     if init is not None:
-        from ._scores import as_scores
-
         frame = as_scores(init, sites=dm.labels)
         if frame.shape[1] < p:
             raise InputError(f"`init` has {frame.shape[1]} column(s); {p} are needed for "
@@ -148,8 +146,6 @@ def _initial(dm: DistanceMatrix, init: object, p: int,
             raise InputError("`init` places every site at the same point; give a configuration "
                              "that separates the sites.")
         return _normalise(x), "init"
-    from ._pcoa import pcoa
-
     scores = pcoa(dm, dimensions=p).scores.to_numpy()
     x = np.zeros((n, p))
     x[:, :scores.shape[1]] = scores
