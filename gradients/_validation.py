@@ -6,8 +6,11 @@ argument has the same rule and the same message everywhere.
 
 from __future__ import annotations
 
+import functools
 import numbers
-from collections.abc import Sequence
+import warnings
+from collections.abc import Callable, Mapping, Sequence
+from typing import Any, TypeVar
 
 import numpy as np
 import pandas as pd
@@ -20,11 +23,13 @@ __all__ = [
     "align_strata",
     "check_alternative",
     "check_choice",
+    "check_confidence_level",
     "check_labels_match",
     "check_n_jobs",
     "check_n_resamples",
     "check_rng",
     "check_unambiguous_series",
+    "renamed_keywords",
     "seed_sequence",
 ]
 
@@ -107,6 +112,15 @@ def check_n_resamples(n_resamples: object, *, allow_zero: bool = False) -> int:
         kind = "a non-negative" if allow_zero else "a positive"
         raise InputError(f"`n_resamples` must be {kind} integer; got {n_resamples!r}.")
     return int(n_resamples)
+
+
+def check_confidence_level(confidence_level: object) -> float:
+    """Return ``confidence_level`` as a float strictly between 0 and 1 (scipy's word)."""
+    ok = isinstance(confidence_level, numbers.Real) and not isinstance(confidence_level, bool)
+    if not ok or not 0 < float(confidence_level) < 1:  # type: ignore[arg-type]
+        raise InputError("`confidence_level` must be a number between 0 and 1 (e.g. 0.95); got "
+                         f"{confidence_level!r}.")
+    return float(confidence_level)  # type: ignore[arg-type]
 
 
 def check_choice(name: str, value: object, choices: Sequence[str]) -> str:
@@ -248,3 +262,34 @@ def align_strata(
         raise InputError(f"`{name}` is missing for site(s) {format_items(bad)}; give every "
                          "site one.", sites=list(bad))
     return out.to_numpy(dtype=object)
+
+
+_F = TypeVar("_F", bound=Callable[..., Any])
+
+
+def renamed_keywords(renamed: Mapping[str, str]) -> Callable[[_F], _F]:
+    """Accept the old names of renamed keywords for one more release, with a warning.
+
+    ``renamed`` maps each old keyword to its new name. A call with an old keyword warns
+    (:class:`DeprecationWarning`, pointing at the caller) and passes the value on under the new
+    name; a call giving both names is a :class:`TypeError`, as Python's own "got multiple
+    values" is. The wrapped function's signature shows only the new names.
+    """
+
+    def decorate(func: _F) -> _F:
+        @functools.wraps(func)
+        def wrapper(*args: Any, **kwargs: Any) -> Any:
+            for old, new in renamed.items():
+                if old not in kwargs:
+                    continue
+                if new in kwargs:
+                    raise TypeError(f"{func.__name__}() got both `{old}` and `{new}`; `{old}` is "
+                                    f"the old name of `{new}`: pass only `{new}`.")
+                warnings.warn(f"`{old}` is deprecated and will be removed in the next release; "
+                              f"use `{new}` (same meaning).", DeprecationWarning, stacklevel=2)
+                kwargs[new] = kwargs.pop(old)
+            return func(*args, **kwargs)
+
+        return wrapper  # type: ignore[return-value]
+
+    return decorate

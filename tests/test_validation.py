@@ -126,7 +126,7 @@ def test_every_stage_refuses_a_negative_seed_with_the_same_message(name):
     calls = _entry_points(rng=-1)
     a, b, _ = _matrices()
     calls["nmds"] = lambda: nmds(a, starts=2, rng=-1)
-    calls["distance_decay"] = lambda: distance_decay(a, b, n_boot=9, rng=-1)
+    calls["distance_decay"] = lambda: distance_decay(a, b, n_resamples=9, rng=-1)
     calls["permutation_plan"] = lambda: permutation_plan(N, n_resamples=9, rng=-1)
     calls["custom_plan"] = lambda: custom_plan(lambda g, k: g.normal(size=(k, N)), N,
                                                n_resamples=9, rng=-1)

@@ -352,7 +352,7 @@ def fit_surface(
         smoothing=lam_hat, pvalue_approx=pval_approx, pvalue=pvalue, statistic=statistic,
         null_distribution=null, n_resamples=used, exact=exact, scheme=scheme_used,
         pvalue_curvature=p_curv,
-        basis_size=basis.rank, n=n, verdict=verdict, fitted=fitted, grid=gdf,
+        basis_size=basis.rank, n_sites=n, verdict=verdict, fitted=fitted, grid=gdf,
         axes=(str(axes[0]), str(axes[1])), notes=tuple(notes), _basis=basis, _beta=beta,
         _grid_shape=gshape,
     )

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import numbers
+import warnings
 from collections.abc import Sequence
 from dataclasses import dataclass, field
 
@@ -54,7 +55,10 @@ class SurfaceFit(ResultMixin):
         (Freedman & Lane 1983) and lambda re-selected every time. NaN for the other families
         and when ``n_resamples=0``.
     basis_size : int
-        Rank of the thin plate basis (``n`` sites for the full thin plate spline).
+        Rank of the thin plate basis (``n_sites`` for the full thin plate spline).
+    n_sites : int
+        Sites the surface was fitted on (those with a value). Called ``n`` before; that name
+        still reads, with a DeprecationWarning, for one release.
     verdict : str
         In words: no clear response, a straight vector would do, or a curved response.
     fitted : Series
@@ -81,7 +85,7 @@ class SurfaceFit(ResultMixin):
     scheme: str
     pvalue_curvature: float
     basis_size: int
-    n: int
+    n_sites: int
     verdict: str
     fitted: pd.Series
     grid: pd.DataFrame
@@ -91,6 +95,13 @@ class SurfaceFit(ResultMixin):
     _beta: np.ndarray = field(default_factory=lambda: np.zeros(0), repr=False)
     _grid_shape: tuple[int, int] = field(default=(0, 0), repr=False)
     _repr_skip = ("notes", "table", "grid", "fitted")
+
+    @property
+    def n(self) -> int:
+        """Deprecated name of :attr:`n_sites`."""
+        warnings.warn("SurfaceFit.n is deprecated and will be removed in the next release; use "
+                      ".n_sites (same value).", DeprecationWarning, stacklevel=2)
+        return self.n_sites
 
     def predict(self, points: pd.DataFrame | np.ndarray, *, scale: str = "response"):
         """Fitted surface at new points.

@@ -243,7 +243,10 @@ def test_input_errors():
     gap.iloc[3] = np.nan
     with pytest.raises(InputError, match="missing"):
         fit_surface(sc, gap, n_resamples=0)
-    assert fit_surface(sc, gap, n_resamples=0, missing="complete").n == 29
+    fit = fit_surface(sc, gap, n_resamples=0, missing="complete")
+    assert fit.n_sites == 29
+    with pytest.warns(DeprecationWarning, match="SurfaceFit.n is deprecated.*use .n_sites"):
+        assert fit.n == 29
 
 
 def test_reml_choice_minimises_directly_computed_restricted_likelihood():
