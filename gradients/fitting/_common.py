@@ -1,4 +1,4 @@
-"""Pieces shared by the three fits: aligning tables, building plans, running tests, adjusting."""
+"""Pieces shared by the three fits: scores and tables, building plans, running tests, adjusting."""
 
 from __future__ import annotations
 
@@ -9,23 +9,45 @@ import numpy as np
 import pandas as pd
 
 from .._errors import InputError, format_items
-from .._validation import check_choice, check_labels_match, check_unambiguous_series
-from ..permutation import ADJUST_METHODS, permutation_plan, permutation_test, seed_sequence
+from .._validation import (
+    align_strata,
+    check_choice,
+    check_labels_match,
+    check_unambiguous_series,
+    seed_sequence,
+)
+from ..ordination import as_scores
+from ..ordination._scores import AxesLike
+from ..permutation import ADJUST_METHODS, permutation_plan, permutation_test
 from ..permutation import adjust_pvalues as _adjust
 
 __all__ = [
     "ADJUST_METHODS",
+    "DEFAULT_AXES",
     "MISSING_RULES",
+    "AxesLike",
     "Design",
     "TestOutcome",
     "adjust_pvalues",
     "align_table",
     "check_weights",
+    "fit_scores",
     "missing_masks",
     "run_by_pattern",
 ]
 
 MISSING_RULES = ("error", "complete")
+#: The vector and factor fits use the first two axes unless told otherwise.
+DEFAULT_AXES = 2
+
+
+def fit_scores(scores: object, axes: AxesLike) -> pd.DataFrame:
+    """The site scores a fit works on: :func:`~gradients.ordination.as_scores` of the chosen axes.
+
+    With ``axes=None`` the first ``DEFAULT_AXES`` columns (or all, when there are fewer).
+    """
+    frame = as_scores(scores, axes=axes)
+    return frame.iloc[:, :DEFAULT_AXES] if axes is None else frame
 
 
 def align_table(table: object, sites: pd.Index, *, name: str) -> pd.DataFrame:
@@ -82,8 +104,9 @@ class Design:
     @classmethod
     def build(cls, sites: pd.Index, *, scheme: str | None, strata: object, blocks: object,
               shape: tuple[int, int] | None) -> Design:
-        return cls(n_sites=len(sites), scheme=scheme, strata=_labels(strata, sites, "strata"),
-                   blocks=_labels(blocks, sites, "blocks"),
+        return cls(n_sites=len(sites), scheme=scheme,
+                   strata=align_strata(strata, sites, name="strata", sites_name="`scores`"),
+                   blocks=align_strata(blocks, sites, name="blocks", sites_name="`scores`"),
                    shape=tuple(shape) if shape is not None else None,  # type: ignore[arg-type]
                    sites=sites)
 
@@ -112,26 +135,6 @@ class Design:
         return permutation_plan(n, scheme, strata=strata, shape=self.shape, blocks=blocks,
                                 n_resamples=n_resamples, rng=rng, batch_size=batch_size,
                                 site_labels=sites)
-
-
-def _labels(values: object, sites: pd.Index, name: str) -> np.ndarray | None:
-    if values is None:
-        return None
-    if isinstance(values, pd.Series):
-        check_unambiguous_series(values, sites, name)
-        check_labels_match(sites, values.index, left_name="`scores`", right_name=f"`{name}`",
-                           fix=f"Give `{name}` one label per site, indexed by site label.")
-        out = values.loc[sites]
-    else:
-        out = pd.Series(list(values) if not isinstance(values, np.ndarray) else values)
-        if len(out) != len(sites):
-            raise InputError(f"`{name}` must give one label per site: {len(out)} labels for "
-                             f"{len(sites)} sites.")
-    if out.isna().any():
-        bad = sites[out.isna().to_numpy()]
-        raise InputError(f"`{name}` is missing for site(s) {format_items(bad)}.",
-                         sites=list(bad))
-    return out.to_numpy(dtype=object)
 
 
 @dataclass(frozen=True)

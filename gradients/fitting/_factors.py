@@ -9,18 +9,19 @@ import pandas as pd
 
 from .._errors import InputError, format_items
 from .._result import ResultMixin
-from .._validation import check_alternative, check_n_resamples
+from .._validation import RNGLike, check_alternative, check_n_jobs, check_n_resamples, seed_sequence
 from ._common import (
     ADJUST_METHODS,
+    AxesLike,
     Design,
     adjust_pvalues,
     align_table,
     check_weights,
+    fit_scores,
     missing_masks,
     run_by_pattern,
 )
 from ._kernels import class_sums_between
-from ._scores import AxesLike, site_scores
 
 __all__ = ["FactorFit", "fit_factors"]
 
@@ -98,7 +99,7 @@ def fit_factors(
     axes: AxesLike = None,
     n_resamples: int = 999,
     alternative: str = "greater",
-    rng: object = None,
+    rng: RNGLike = None,
     strata: object = None,
     scheme: str | None = None,
     blocks: object = None,
@@ -165,9 +166,11 @@ def fit_factors(
     """
     n_resamples = check_n_resamples(n_resamples)
     alternative = check_alternative(alternative)
+    n_jobs = check_n_jobs(n_jobs)
+    root = seed_sequence(rng)
     if adjust is not None and adjust not in ADJUST_METHODS:
         raise InputError(f"`adjust` must be one of 'holm', 'fdr_bh' or None; got {adjust!r}.")
-    sc = site_scores(scores, axes)
+    sc = fit_scores(scores, axes)
     fac = _categorical(align_table(factors, sc.index, name="factors"))
     masks = missing_masks(fac, missing, what="Factor")
     w_in = check_weights(weights, sc.index)
@@ -222,7 +225,7 @@ def fit_factors(
 
         return statistic
 
-    outcome = run_by_pattern(factory, masks, design, n_resamples=n_resamples, rng=rng,
+    outcome = run_by_pattern(factory, masks, design, n_resamples=n_resamples, rng=root,
                              alternative=alternative, n_jobs=n_jobs)
     adjusted = adjust_pvalues(outcome.pvalue, adjust)
     n_used = masks.sum(axis=0)

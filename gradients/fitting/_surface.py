@@ -4,27 +4,21 @@ from __future__ import annotations
 
 import numbers
 from collections.abc import Sequence
-from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
-from scipy import stats
 
 from .._errors import InputError, format_items
-from .._result import ResultMixin, format_value
-from .._validation import check_choice, check_n_resamples
-from ..permutation import seed_sequence
-from ._common import Design, align_table, missing_masks
-from ._kernels import project_batch
-from ._scores import site_scores
+from .._result import format_value
+from .._validation import RNGLike, check_choice, check_n_jobs, check_n_resamples, seed_sequence
+from ._common import Design, align_table, fit_scores, missing_masks
+from ._surface_result import SurfaceFit, prediction_grid
+from ._surface_stats import approx_pvalue, curvature_statistic, permutation_statistic, pseudo_f
 from ._tprs import (
     CRITERIA,
     FAMILIES,
     NULL_DIM,
-    ThinPlateBasis,
-    criterion_grid,
     demmler_reinsch_svd,
-    deviance,
     lambda_grid,
     null_deviance,
     pirls,
@@ -45,170 +39,6 @@ GCV_REML_EDF_GAP = 3.0
 #: Spawn key of the curvature test's random stream (far beyond any batch number).
 _CURVATURE_STREAM = 0x63757276
 
-
-@dataclass(frozen=True, repr=False)
-class SurfaceFit(ResultMixin):
-    """A smooth surface of one variable over two ordination axes.
-
-    Attributes
-    ----------
-    variable : str
-    family, method : str
-        Response family and the smoothing-parameter criterion used.
-    edf : float
-        Effective degrees of freedom of the surface, intercept excluded: 2 for a plane (a
-        straight vector), more for a curved surface.
-    deviance_explained : float
-        ``1 - D / D0``, D0 the deviance of the constant (intercept-only) model.
-    smoothing : float
-        The selected smoothing parameter lambda (coordinates scaled as described in the docs).
-    pvalue_approx : float
-        Approximate p-value against the constant model (F for Gaussian, chi-square otherwise;
-        Hastie & Tibshirani 1990), ignoring that lambda was estimated.
-    pvalue : float
-        Permutation p-value of ``statistic`` with lambda re-selected by REML on every
-        permutation (NaN when ``n_resamples=0``).
-    statistic : float
-        The observed test statistic, a pseudo-F of the surface against the constant model,
-        ``((D0 - D) / edf) / (D / (n - edf - 1))``, with lambda chosen by REML (scale
-        estimated) on the grid used for every permutation (see Notes).
-    null_distribution : ndarray (P,)
-    n_resamples : int
-    exact : bool
-    scheme : str
-    pvalue_curvature : float
-        Gaussian family: permutation p-value of the curvature, the share of the plane's
-        residual sum of squares that the smooth removes, with the plane's residuals permuted
-        (Freedman & Lane 1983) and lambda re-selected every time. NaN for the other families
-        and when ``n_resamples=0``.
-    basis_size : int
-        Rank of the thin plate basis (``n`` sites for the full thin plate spline).
-    verdict : str
-        In words: no clear response, a straight vector would do, or a curved response.
-    fitted : Series
-        Fitted values (response scale) at the sites used.
-    grid : DataFrame
-        Prediction grid: ``x``, ``y`` (the two axes), ``fitted`` and ``inside`` (within the
-        sites' convex hull; ``fitted`` is NaN outside).
-    axes : tuple of str
-    notes : tuple of str
-    """
-
-    variable: str
-    family: str
-    method: str
-    edf: float
-    deviance_explained: float
-    smoothing: float
-    pvalue_approx: float
-    pvalue: float
-    statistic: float
-    null_distribution: np.ndarray
-    n_resamples: int
-    exact: bool
-    scheme: str
-    pvalue_curvature: float
-    basis_size: int
-    n: int
-    verdict: str
-    fitted: pd.Series
-    grid: pd.DataFrame
-    axes: tuple[str, str]
-    notes: tuple[str, ...] = ()
-    _basis: ThinPlateBasis | None = field(default=None, repr=False)
-    _beta: np.ndarray = field(default_factory=lambda: np.zeros(0), repr=False)
-    _grid_shape: tuple[int, int] = field(default=(0, 0), repr=False)
-    _repr_skip = ("notes", "table", "grid", "fitted")
-
-    def predict(self, points: pd.DataFrame | np.ndarray, *, scale: str = "response"):
-        """Fitted surface at new points.
-
-        Parameters
-        ----------
-        points : DataFrame with the two axis columns, or array (m, 2)
-        scale : {'response', 'link'}
-            Response scale (counts, probabilities) or the linear predictor.
-
-        Returns
-        -------
-        Series (indexed like ``points``) for a DataFrame, else ndarray (m,). Points outside
-        the sites' convex hull are extrapolations (the spline continues as a plane there).
-        """
-        return predict_surface(self, points, scale=scale)
-
-    def contours(self, levels: int | Sequence[float] = 7) -> pd.DataFrame:
-        """Contour lines of the fitted surface within the hull, computed without drawing.
-
-        Parameters
-        ----------
-        levels : int or sequence of float
-            Number of rounded levels within the fitted range, or the levels themselves.
-
-        Returns
-        -------
-        DataFrame with ``level``, ``line`` (piece number within the level), ``x``, ``y``.
-        """
-        return surface_contours(self, levels)
-
-
-def predict_surface(fit: SurfaceFit, points: object, *, scale: str = "response"):
-    check_choice("scale", scale, ("response", "link"))
-    index = None
-    if isinstance(points, pd.DataFrame):
-        missing = [a for a in fit.axes if a not in points.columns]
-        if missing:
-            raise InputError(f"`points` needs the columns {format_items(fit.axes)}; missing "
-                             f"{format_items(missing)}.", columns=missing)
-        index = points.index
-        arr = points[list(fit.axes)].to_numpy(dtype=np.float64)
-    else:
-        arr = np.asarray(points, dtype=np.float64)
-        if arr.ndim == 1 and arr.size == 2:
-            arr = arr[None, :]
-    if arr.ndim != 2 or arr.shape[1] != 2:
-        raise InputError(f"`points` must have two columns (the axes {format_items(fit.axes)}); "
-                         f"got shape {arr.shape}.")
-    if not np.isfinite(arr).all():
-        raise InputError("`points` holds missing or infinite coordinates.")
-    eta = fit._basis.design(arr) @ fit._beta  # type: ignore[union-attr]
-    out = _inverse_link(fit.family, eta) if scale == "response" else eta
-    return pd.Series(out, index=index, name=fit.variable) if index is not None else out
-
-
-def surface_contours(fit: SurfaceFit, levels: int | Sequence[float]) -> pd.DataFrame:
-    import contourpy
-
-    ny, nx = fit._grid_shape
-    gx = fit.grid["x"].to_numpy().reshape(ny, nx)
-    gy = fit.grid["y"].to_numpy().reshape(ny, nx)
-    z = np.ma.masked_invalid(fit.grid["fitted"].to_numpy().reshape(ny, nx))
-    if z.count() == 0:
-        return pd.DataFrame(columns=["level", "line", "x", "y"])
-    lo, hi = float(z.min()), float(z.max())
-    if isinstance(levels, numbers.Integral):
-        from matplotlib.ticker import MaxNLocator
-
-        ticks = MaxNLocator(int(levels)).tick_values(lo, hi)
-        values = [float(t) for t in ticks if lo < t < hi]
-    else:
-        values = [float(v) for v in levels]
-    gen = contourpy.contour_generator(gx, gy, z)
-    rows = []
-    for level in values:
-        for piece, line in enumerate(gen.lines(level)):
-            rows.append(pd.DataFrame({"level": level, "line": piece, "x": line[:, 0],
-                                      "y": line[:, 1]}))
-    if not rows:
-        return pd.DataFrame(columns=["level", "line", "x", "y"])
-    return pd.concat(rows, ignore_index=True)
-
-
-def _inverse_link(family: str, eta: np.ndarray) -> np.ndarray:
-    if family == "poisson":
-        return np.exp(eta)
-    if family == "binomial":
-        return 1.0 / (1.0 + np.exp(-eta))
-    return eta
 
 
 def _response(values: object, sites: pd.Index) -> pd.Series:
@@ -265,7 +95,7 @@ def fit_surface(
     family: str = "gaussian",
     method: str = "gcv",
     n_resamples: int = 999,
-    rng: object = None,
+    rng: RNGLike = None,
     strata: object = None,
     scheme: str | None = None,
     blocks: object = None,
@@ -399,6 +229,8 @@ def fit_surface(
                          "'reml'.")
     criterion = "ubre" if (method == "gcv" and family != "gaussian") else method
     n_resamples = check_n_resamples(n_resamples, allow_zero=True)
+    n_jobs = check_n_jobs(n_jobs)
+    plan_seed = seed_sequence(rng)
     if isinstance(axes, str) or len(axes) != 2:
         raise InputError(f"`axes` must name exactly two score columns; got {axes!r}.")
     if not isinstance(grid_size, numbers.Integral) or not 5 <= grid_size <= 1000:
@@ -408,7 +240,7 @@ def fit_surface(
         raise InputError(f"`basis_size` must be an integer of at least 5; got {basis_size!r}.")
     if smoothing is not None and not (isinstance(smoothing, numbers.Real) and smoothing >= 0):
         raise InputError(f"`smoothing` must be a non-negative number; got {smoothing!r}.")
-    sc_all = site_scores(scores, list(axes))
+    sc_all = fit_scores(scores, list(axes))
     series = _response(values, sc_all.index)
     name = str(series.name)
     mask = missing_masks(series.to_frame(name), missing, what="Surface")[:, 0]
@@ -463,11 +295,10 @@ def fit_surface(
                 "2011); consider method='reml'.")
 
     # approximate test against the constant model
-    pval_approx = _approx_pvalue(family, x, basis.penalty, y, fit, d0, n)
+    pval_approx = approx_pvalue(family, x, basis.penalty, y, fit, d0, n)
 
     # permutation tests: the response against a constant, then (Gaussian) the curvature, from
     # a stream of its own (a spawn key that no batch of the first plan reaches)
-    plan_seed = seed_sequence(rng)
     plan_seed_curvature = np.random.SeedSequence(
         plan_seed.entropy, spawn_key=(*plan_seed.spawn_key, _CURVATURE_STREAM),
         pool_size=plan_seed.pool_size)
@@ -476,8 +307,8 @@ def fit_surface(
     if n_resamples > 0:
         # REML with the scale estimated, whatever `method`: the most powerful of the criteria
         # tried here (see Notes); the permutations keep the test valid with any of them
-        statistic_fn = _permutation_statistic(x, basis.penalty, y, family, "reml", grid,
-                                              smoothing, d0)
+        statistic_fn = permutation_statistic(x, basis.penalty, y, family, "reml", grid,
+                                             smoothing, d0)
         from ..permutation import permutation_test
 
         plan = design.plan(mask, n_resamples=n_resamples, rng=plan_seed,
@@ -503,7 +334,7 @@ def fit_surface(
 
         # REML whatever `method`: GCV's over-fitting of small samples makes a much weaker
         # curvature test (see Notes)
-        curv_fn = _curvature_statistic(x, basis.penalty, y, t, "reml", grid, smoothing)
+        curv_fn = curvature_statistic(x, basis.penalty, y, t, "reml", grid, smoothing)
         plan_c = design.plan(mask, n_resamples=n_resamples, rng=plan_seed_curvature,
                              batch_size=max(16, min(1000, 4_000_000 // (n * basis.rank))))
         res_c = permutation_test(curv_fn, plan_c, alternative="greater", n_jobs=n_jobs,
@@ -512,7 +343,7 @@ def fit_surface(
     verdict = _verdict(edf, gcv_plane, gcv_smooth, pvalue if n_resamples > 0 else pval_approx,
                        "permutation" if n_resamples > 0 else "approximate", dexp, p_curv)
 
-    gdf, gshape = _prediction_grid(basis, beta, pts, family, grid_size, list(axes))
+    gdf, gshape = prediction_grid(basis, beta, pts, family, grid_size, list(axes))
     fitted = pd.Series(fit.mu[0], index=sc.index, name=name)
     if n < 30:
         notes.append(f"Only {n} sites: the surface is only a rough guide.")
@@ -521,118 +352,11 @@ def fit_surface(
         smoothing=lam_hat, pvalue_approx=pval_approx, pvalue=pvalue, statistic=statistic,
         null_distribution=null, n_resamples=used, exact=exact, scheme=scheme_used,
         pvalue_curvature=p_curv,
-        basis_size=basis.rank, n=n, verdict=verdict, fitted=fitted, grid=gdf,
+        basis_size=basis.rank, n_sites=n, verdict=verdict, fitted=fitted, grid=gdf,
         axes=(str(axes[0]), str(axes[1])), notes=tuple(notes), _basis=basis, _beta=beta,
         _grid_shape=gshape,
     )
 
-
-def _approx_pvalue(family: str, x: np.ndarray, penalty: np.ndarray, y: np.ndarray, fit,
-                   d0: float, n: int) -> float:
-    """Hastie & Tibshirani (1990) approximate F (Gaussian) or chi-square test vs constant."""
-    mu = fit.mu[0]
-    if family == "gaussian":
-        w = np.ones(n)
-    elif family == "poisson":
-        w = mu
-    else:
-        w = mu * (1.0 - mu)
-    _, lam, valid = demmler_reinsch_svd(np.sqrt(w)[:, None] * x, penalty)
-    s = np.where(valid[0], 1.0 / (1.0 + fit.smoothing[0] * lam[0]), 0.0)
-    edf = float(s.sum()) - 1.0
-    dev = float(fit.deviance[0])
-    if edf <= 1e-8:
-        return 1.0
-    if family == "gaussian":
-        df_resid = n - float((2.0 * s - s * s).sum())
-        if df_resid <= 0 or dev <= 0:
-            return float("nan")
-        f_stat = ((d0 - dev) / edf) / (dev / df_resid)
-        return float(stats.f.sf(f_stat, edf, df_resid))
-    return float(stats.chi2.sf(d0 - dev, edf))
-
-
-def pseudo_f(d0: float | np.ndarray, dev: np.ndarray, edf: np.ndarray, n: int) -> np.ndarray:
-    """``((D0 - D) / edf) / (D / (n - edf - 1))``: the surface against the constant model.
-
-    ``edf`` excludes the intercept. Dividing the deviance removed by the degrees of freedom
-    spent on it keeps a wiggly surface fitted to noise from scoring like a real gradient.
-    """
-    edf = np.maximum(np.asarray(edf, dtype=np.float64), 1e-8)
-    resid_df = np.maximum(n - edf - 1.0, 1e-8)
-    return ((d0 - dev) / edf) / (np.maximum(dev, 1e-300) / resid_df)
-
-
-def _permutation_statistic(x, penalty, y, family, criterion, grid, smoothing, d0):
-    """Batched pseudo-F of the surface with lambda re-selected for every permuted data set.
-
-    The statistic is :func:`pseudo_f` rather than the deviance explained, and ``criterion``
-    (REML) profiles the scale out for every family. With deviance explained, permuted noise
-    fitted by near-interpolating surfaces (GCV on a few dozen sites) or permuted counts, whose
-    spread a known scale of 1 reads as signal, filled the null distribution with high values
-    and the test lost most of its power (see the Notes of :func:`fit_surface`).
-    """
-    n = len(y)
-    if family == "gaussian":
-        coef_map, lam, valid = demmler_reinsch_svd(x, penalty)
-        rows = np.ascontiguousarray((x @ coef_map[0]).T)  # B', orthonormal rows (p, n)
-        y = y - y.mean()  # the fit is shift-equivariant; centring avoids cancellation in RSS
-        yy = float(y @ y)
-        lam_grid = grid if smoothing is None else np.array([float(smoothing)])
-        rank = int(np.linalg.matrix_rank(penalty))
-
-        def statistic(orders: np.ndarray) -> np.ndarray:
-            b = project_batch(orders, rows, y[:, None])[:, :, 0]  # (k, p)
-            k = b.shape[0]
-            crit, rss, edf = criterion_grid(b * b, np.broadcast_to(lam, (k, lam.shape[1])),
-                                            np.broadcast_to(valid, (k, valid.shape[1])),
-                                            np.full(k, yy), n, lam_grid, criterion,
-                                            known_scale=False, penalty_rank=rank)
-            best = np.argmin(crit, axis=1)
-            pick = np.arange(k)
-            return pseudo_f(d0, rss[pick, best], edf[pick, best] - 1.0, n)
-
-        return statistic
-
-    def statistic_glm(orders: np.ndarray) -> np.ndarray:
-        fits = pirls(x, penalty, y[orders], family, method=criterion, grid=grid,
-                     smoothing=smoothing, known_scale=False)
-        return pseudo_f(d0, deviance(family, y[orders], fits.mu), fits.edf - 1.0, n)
-
-    return statistic_glm
-
-
-def _curvature_statistic(x, penalty, y, t, criterion, grid, smoothing):
-    """Batched curvature share ``1 - D_smooth / D_plane`` for permuted plane residuals.
-
-    The plane (intercept and both axes) is the unpenalised part of the basis, so adding any
-    plane to the data changes neither fit's residuals: the statistic of ``fitted plane +
-    permuted residuals`` is that of the permuted residuals alone, whose Demmler-Reinsch
-    coordinates are one batched projection. Lambda is re-selected on the grid every time.
-    """
-    n = len(y)
-    coef_map, lam, valid = demmler_reinsch_svd(x, penalty)
-    rows = np.ascontiguousarray((x @ coef_map[0]).T)  # (p, n), orthonormal
-    q_plane, _ = np.linalg.qr(t)
-    resid = y - q_plane @ (q_plane.T @ y)
-    plane_rows = np.ascontiguousarray(q_plane.T)
-    ee = float(resid @ resid)
-    lam_grid = grid if smoothing is None else np.array([float(smoothing)])
-    rank = int(np.linalg.matrix_rank(penalty))
-
-    def statistic(orders: np.ndarray) -> np.ndarray:
-        b = project_batch(orders, rows, resid[:, None])[:, :, 0]  # (k, p)
-        k = b.shape[0]
-        crit, rss, _ = criterion_grid(b * b, np.broadcast_to(lam, (k, lam.shape[1])),
-                                      np.broadcast_to(valid, (k, valid.shape[1])),
-                                      np.full(k, ee), n, lam_grid, criterion,
-                                      known_scale=False, penalty_rank=rank)
-        smooth = rss[np.arange(k), np.argmin(crit, axis=1)]
-        on_plane = project_batch(orders, plane_rows, resid[:, None])[:, :, 0]
-        flat = np.maximum(ee - (on_plane * on_plane).sum(axis=1), 1e-300)
-        return 1.0 - smooth / flat
-
-    return statistic
 
 
 def _verdict(edf: float, gcv_plane: float, gcv_smooth: float, p: float, kind: str,
@@ -654,23 +378,3 @@ def _verdict(edf: float, gcv_plane: float, gcv_smooth: float, p: float, kind: st
                 f"{ptext})")
     return (f"curved response: a straight vector would misrepresent it ({detail}; plane GCV "
             f"{format_value(gcv_plane)} vs surface {format_value(gcv_smooth)}; {ptext})")
-
-
-def _prediction_grid(basis: ThinPlateBasis, beta: np.ndarray, pts: np.ndarray, family: str,
-                     size: int, axes: list[str]) -> tuple[pd.DataFrame, tuple[int, int]]:
-    """Regular grid over the sites' bounding box; NaN outside their convex hull (shapely)."""
-    import shapely
-
-    gx = np.linspace(pts[:, 0].min(), pts[:, 0].max(), size)
-    gy = np.linspace(pts[:, 1].min(), pts[:, 1].max(), size)
-    mx, my = np.meshgrid(gx, gy)
-    hull = shapely.MultiPoint(pts).convex_hull
-    inside = shapely.intersects_xy(hull, mx.ravel(), my.ravel())
-    fitted = np.full(mx.size, np.nan)
-    if inside.any():
-        where = np.column_stack([mx.ravel()[inside], my.ravel()[inside]])
-        fitted[inside] = _inverse_link(family, basis.design(where) @ beta)
-    frame = pd.DataFrame({"x": mx.ravel(), "y": my.ravel(), "fitted": fitted,
-                          "inside": inside})
-    frame.attrs["axes"] = tuple(axes)
-    return frame, (size, size)

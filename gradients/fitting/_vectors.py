@@ -10,18 +10,19 @@ import pandas as pd
 
 from .._errors import InputError, format_items
 from .._result import ResultMixin
-from .._validation import check_alternative, check_n_resamples
+from .._validation import RNGLike, check_alternative, check_n_jobs, check_n_resamples, seed_sequence
 from ._common import (
     ADJUST_METHODS,
+    AxesLike,
     Design,
     adjust_pvalues,
     align_table,
     check_weights,
+    fit_scores,
     missing_masks,
     run_by_pattern,
 )
 from ._kernels import project_batch
-from ._scores import AxesLike, site_scores
 
 __all__ = ["VectorFit", "fit_vectors"]
 
@@ -206,7 +207,7 @@ def fit_vectors(
     axes: AxesLike = None,
     n_resamples: int = 999,
     alternative: str = "greater",
-    rng: object = None,
+    rng: RNGLike = None,
     strata: object = None,
     scheme: str | None = None,
     blocks: object = None,
@@ -293,9 +294,11 @@ def fit_vectors(
     """
     n_resamples = check_n_resamples(n_resamples)
     alternative = check_alternative(alternative)
+    n_jobs = check_n_jobs(n_jobs)
+    root = seed_sequence(rng)
     if adjust is not None and adjust not in ADJUST_METHODS:
         raise InputError(f"`adjust` must be one of 'holm', 'fdr_bh' or None; got {adjust!r}.")
-    sc = site_scores(scores, axes)
+    sc = fit_scores(scores, axes)
     env = _numeric_environment(align_table(environment, sc.index, name="environment"))
     masks = missing_masks(env, missing, what="Environmental")
     w = check_weights(weights, sc.index)
@@ -324,7 +327,7 @@ def fit_vectors(
         if norm > 0:
             cosines[j] = beta / norm
     outcome = run_by_pattern(_statistic_factory(x, y, w), masks, design,
-                             n_resamples=n_resamples, rng=rng, alternative=alternative,
+                             n_resamples=n_resamples, rng=root, alternative=alternative,
                              n_jobs=n_jobs)
     adjusted = adjust_pvalues(outcome.pvalue, adjust)
     table = pd.DataFrame(cosines, index=env.columns, columns=list(sc.columns))

@@ -8,7 +8,8 @@ evaluated by compiled kernels (:mod:`gradients.matrix._kernels`).
 
 from ._correlogram import MantelCorrelogramResult, mantel_correlogram
 from ._decay import DistanceDecayResult, distance_decay
-from ._mantel import MantelResult, PartialMantelResult, mantel, partial_mantel
+from ._mantel import MantelResult, mantel
+from ._partial import PartialMantelResult, partial_mantel
 from ._regression import MatrixRegressionResult, matrix_regression
 
 __all__ = [

@@ -11,14 +11,19 @@ import pandas as pd
 
 from .._errors import InputError
 from .._result import ResultMixin
-from .._validation import RNGLike, check_alternative, check_choice, check_n_resamples, check_rng
+from .._validation import (
+    RNGLike,
+    check_alternative,
+    check_choice,
+    check_n_jobs,
+    check_n_resamples,
+    check_rng,
+)
 from ..permutation import PermutationPlan, permutation_test
 from ._inputs import (
     MatrixLike,
     align_matrices,
-    align_strata,
     build_plan,
-    check_jobs,
     rank_condensed,
     square_of,
     standardise,
@@ -207,7 +212,7 @@ def mantel_correlogram(
     method = check_choice("method", method, ("pearson", "spearman"))
     alternative = check_alternative(alternative)
     n_resamples = check_n_resamples(n_resamples)
-    n_jobs = check_jobs(n_jobs)
+    n_jobs = check_n_jobs(n_jobs)
     if not isinstance(min_pairs, numbers.Integral) or isinstance(min_pairs, bool) \
             or min_pairs < 1:
         raise InputError(f"`min_pairs` must be a positive integer; got {min_pairs!r}.")
@@ -242,7 +247,7 @@ def mantel_correlogram(
     with np.errstate(divide="ignore", invalid="ignore"):
         observed = np.where(defined, -observed_sums / scale, np.nan)
 
-    plan = build_plan(n, scheme=scheme, strata=align_strata(strata, labels),
+    plan = build_plan(n, scheme=scheme, strata=strata,
                       n_resamples=n_resamples, rng=gen, labels=labels)
     center = 0.0 if plan.scheme == "free" else None
     notes: list[str] = []

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import numbers
+import warnings
 from dataclasses import dataclass
 
 import numpy as np
@@ -11,7 +12,14 @@ from scipy.spatial.distance import squareform
 
 from .._errors import InputError
 from .._result import ResultMixin
-from .._validation import RNGLike, check_choice, check_rng
+from .._validation import (
+    RNGLike,
+    check_choice,
+    check_confidence_level,
+    check_n_resamples,
+    check_rng,
+    renamed_keywords,
+)
 from ..permutation import site_ranks
 from ._inputs import MatrixLike, align_matrices
 
@@ -37,16 +45,21 @@ class DistanceDecayResult(ResultMixin):
         Power model: the halving factor ``2^(-1/b)``, by which distance must be multiplied
         for similarity to halve (dimensionless). ``inf`` when the slope is not negative.
     slope_interval, halving_interval : tuple of float
-        Percentile intervals (level ``confidence``) from the bootstrap of sites.
-    confidence : float
+        Percentile intervals (level ``confidence_level``) from the bootstrap of sites.
+    confidence_level : float
+        Level of the intervals (``confidence`` before; that name still reads, with a
+        DeprecationWarning, for one release).
     n_sites : int
     n_pairs : int
         Pairs used in the fit.
     n_dropped : int
         Pairs left out (zero similarity without ``offset``; zero distance in the power model).
-    n_boot : int
-    bootstrap : ndarray, shape (n_boot, 2)
-        Bootstrap slopes and intercepts.
+    n_resamples : int
+        Bootstrap samples of sites drawn (``n_boot`` before; still read, with a
+        DeprecationWarning, for one release).
+    bootstrap_distribution : ndarray, shape (n_resamples, 2)
+        Bootstrap slopes and intercepts (``bootstrap`` before; still read, with a
+        DeprecationWarning, for one release).
     table : DataFrame
         Rows ``slope``, ``intercept``, ``halving``; columns ``estimate``, ``lower``,
         ``upper``.
@@ -66,16 +79,39 @@ class DistanceDecayResult(ResultMixin):
     halving: float
     slope_interval: tuple[float, float]
     halving_interval: tuple[float, float]
-    confidence: float
+    confidence_level: float
     n_sites: int
     n_pairs: int
     n_dropped: int
-    n_boot: int
-    bootstrap: np.ndarray
+    n_resamples: int
+    bootstrap_distribution: np.ndarray
     table: pd.DataFrame
     pairs: pd.DataFrame
     curve: pd.DataFrame
     notes: tuple[str, ...] = ()
+
+    @property
+    def confidence(self) -> float:
+        """Deprecated name of :attr:`confidence_level`."""
+        _renamed_field("confidence", "confidence_level")
+        return self.confidence_level
+
+    @property
+    def n_boot(self) -> int:
+        """Deprecated name of :attr:`n_resamples`."""
+        _renamed_field("n_boot", "n_resamples")
+        return self.n_resamples
+
+    @property
+    def bootstrap(self) -> np.ndarray:
+        """Deprecated name of :attr:`bootstrap_distribution`."""
+        _renamed_field("bootstrap", "bootstrap_distribution")
+        return self.bootstrap_distribution
+
+
+def _renamed_field(old: str, new: str) -> None:
+    warnings.warn(f"DistanceDecayResult.{old} is deprecated and will be removed in the next "
+                  f"release; use .{new} (same value).", DeprecationWarning, stacklevel=3)
 
 
 def _halving(slope: np.ndarray | float, model: str) -> np.ndarray:
@@ -97,6 +133,7 @@ def _fit_weighted(sw: np.ndarray, sx: np.ndarray, sy: np.ndarray, sxx: np.ndarra
     return slope, intercept
 
 
+@renamed_keywords({"n_boot": "n_resamples", "confidence": "confidence_level"})
 def distance_decay(
     d: MatrixLike,
     geo: MatrixLike,
@@ -104,8 +141,8 @@ def distance_decay(
     model: str = "exponential",
     similarity: str = "1-d",
     offset: float | None = None,
-    n_boot: int = 999,
-    confidence: float = 0.95,
+    n_resamples: int = 999,
+    confidence_level: float = 0.95,
     rng: RNGLike = None,
     grid: int = 100,
 ) -> DistanceDecayResult:
@@ -129,19 +166,25 @@ def distance_decay(
         (counted in ``n_dropped`` and the notes); with ``offset`` the model is fitted to
         ``ln(S + offset)`` for every pair instead. In the power model pairs at distance 0
         are always left out.
-    n_boot : int, default 999
+    n_resamples : int, default 999
         Bootstrap resamples of sites for the intervals.
-    confidence : float, default 0.95
+    confidence_level : float, default 0.95
         Level of the percentile intervals.
     rng : int, numpy.random.Generator or None
-        When `rng` is None, a new `numpy.random.Generator` is created using entropy from the
-        operating system.
+        Source of the bootstrap samples. When `rng` is None, a new `numpy.random.Generator` is
+        created using entropy from the operating system.
     grid : int, default 100
         Number of distances in ``curve``.
 
     Returns
     -------
     DistanceDecayResult
+
+    Other Parameters
+    ----------------
+    n_boot, confidence
+        Deprecated names of ``n_resamples`` and ``confidence_level``, accepted with a
+        DeprecationWarning for one release (giving both names is a TypeError).
 
     Notes
     -----
@@ -183,10 +226,8 @@ def distance_decay(
     if offset is not None and not (isinstance(offset, numbers.Real) and offset > 0
                                    and np.isfinite(offset)):
         raise InputError(f"`offset` must be a positive number or None; got {offset!r}.")
-    if not isinstance(n_boot, numbers.Integral) or isinstance(n_boot, bool) or n_boot < 1:
-        raise InputError(f"`n_boot` must be a positive integer; got {n_boot!r}.")
-    if not isinstance(confidence, numbers.Real) or not 0 < confidence < 1:
-        raise InputError(f"`confidence` must be between 0 and 1; got {confidence!r}.")
+    n_resamples = check_n_resamples(n_resamples)
+    confidence_level = check_confidence_level(confidence_level)
     if not isinstance(grid, numbers.Integral) or grid < 2:
         raise InputError(f"`grid` must be an integer of at least 2; got {grid!r}.")
     gen = check_rng(rng)
@@ -243,10 +284,10 @@ def distance_decay(
     # bootstrap of sites: pair weights c_i c_j from multinomial site counts
     squares = [squareform(q * w, checks=False) for q in (np.ones_like(xs), xs, ys, xs * xs,
                                                           xs * ys)]
-    boot = np.empty((int(n_boot), 2))
+    boot = np.empty((n_resamples, 2))
     ranks = site_ranks(labels)  # counts drawn over label-sorted sites: row order does not matter
-    for start in range(0, int(n_boot), _BOOT_CHUNK):
-        k = min(_BOOT_CHUNK, int(n_boot) - start)
+    for start in range(0, n_resamples, _BOOT_CHUNK):
+        k = min(_BOOT_CHUNK, n_resamples - start)
         counts = gen.multinomial(n, np.full(n, 1.0 / n), size=k)[:, ranks].astype(np.float64)
         wsums = [0.5 * np.einsum("bi,bi->b", counts @ sq, counts) for sq in squares]
         bs, bi = _fit_weighted(*wsums)
@@ -258,7 +299,7 @@ def distance_decay(
         notes.append(f"{n_bad} bootstrap sample(s) had too few distinct distances to fit and "
                      "were left out of the intervals.")
     good = boot[finite]
-    tail = (1.0 - confidence) / 2.0
+    tail = (1.0 - confidence_level) / 2.0
     lo_s, hi_s = (float(v) for v in np.quantile(good[:, 0], [tail, 1 - tail]))
     lo_i, hi_i = (float(v) for v in np.quantile(good[:, 1], [tail, 1 - tail]))
     halving = float(_halving(slope, model))
@@ -293,8 +334,9 @@ def distance_decay(
         index=pd.Index(["slope", "intercept", "halving"], name="parameter"))
     notes.insert(0, f"{model.capitalize()} model, ln(similarity) = a + b "
                     f"{'distance' if model == 'exponential' else 'ln(distance)'}; "
-                    f"{halving_name} {halving:.4g}; {100 * confidence:g}% percentile intervals "
-                    f"from {len(good)} bootstrap samples of sites (Nekola & White 1999).")
+                    f"{halving_name} {halving:.4g}; {100 * confidence_level:g}% percentile "
+                    f"intervals from {len(good)} bootstrap samples of sites (Nekola & White "
+                    "1999).")
     return DistanceDecayResult(
         model=model,
         slope=slope,
@@ -303,12 +345,12 @@ def distance_decay(
         halving=halving,
         slope_interval=(lo_s, hi_s),
         halving_interval=(h_lo, h_hi),
-        confidence=float(confidence),
+        confidence_level=confidence_level,
         n_sites=n,
         n_pairs=n_used,
         n_dropped=int(s.size - n_used),
-        n_boot=int(n_boot),
-        bootstrap=boot,
+        n_resamples=n_resamples,
+        bootstrap_distribution=boot,
         table=table,
         pairs=pairs,
         curve=curve,

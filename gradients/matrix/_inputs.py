@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import numbers
 from collections.abc import Mapping, Sequence
 
 import numpy as np
@@ -11,16 +10,14 @@ from scipy import stats
 from scipy.spatial.distance import squareform
 
 from .._errors import InputError, format_items
-from .._validation import check_labels_match, check_unambiguous_series
+from .._validation import align_strata, check_labels_match
 from ..distance import DistanceMatrix
 from ..permutation import SCHEMES, PermutationPlan, permutation_plan
 
 __all__ = [
     "MatrixLike",
     "align_matrices",
-    "align_strata",
     "build_plan",
-    "check_jobs",
     "control_matrices",
     "rank_condensed",
     "square_of",
@@ -143,13 +140,6 @@ def square_of(c: np.ndarray) -> np.ndarray:
     return np.ascontiguousarray(squareform(np.asarray(c, dtype=np.float64), checks=False))
 
 
-def check_jobs(n_jobs: object) -> int:
-    if not isinstance(n_jobs, numbers.Integral) or isinstance(n_jobs, bool) or n_jobs == 0 \
-            or n_jobs < -1:
-        raise InputError(f"`n_jobs` must be a positive integer or -1 (all cores); got {n_jobs!r}.")
-    return int(n_jobs)
-
-
 def build_plan(
     n: int,
     *,
@@ -161,7 +151,9 @@ def build_plan(
 ) -> PermutationPlan:
     """The permutation plan for a matrix test: free by default, within ``strata`` if given.
 
-    With the sites' ``labels``, random orders do not depend on the order the sites come in.
+    ``strata`` is aligned to the sites' ``labels`` (a labelled Series is matched by label; see
+    :func:`gradients._validation.align_strata`). With the labels, random orders do not depend
+    on the order the sites come in.
     """
     if isinstance(scheme, PermutationPlan):
         if scheme.n_sites != n:
@@ -179,28 +171,8 @@ def build_plan(
     if scheme is not None and scheme not in SCHEMES:
         raise InputError(f"`scheme` must be one of {format_items(SCHEMES)} or a plan from "
                          f"permutation_plan(); got {scheme!r}.")
+    strata = align_strata(strata, labels if labels is not None else n,
+                          sites_name="the matrices")
     return permutation_plan(n, scheme or ("strata" if strata is not None else "free"),
                             strata=strata, n_resamples=n_resamples, rng=rng,
                             site_labels=labels)
-
-
-def align_strata(strata: object, labels: pd.Index) -> object:
-    """Strata given as a labelled Series are put in site order; other sequences are positional.
-
-    A Series whose index holds exactly the sites' labels is matched by label, whatever the
-    index type (integer site IDs often come as a RangeIndex); a Series with a default
-    RangeIndex that is not the sites' labels is taken in site order.
-    """
-    if strata is None:
-        return None
-    if isinstance(strata, pd.Series):
-        check_unambiguous_series(strata, labels, "strata")
-    if isinstance(strata, pd.Series) and len(strata) == len(labels) \
-            and set(strata.index) == set(labels):
-        return strata.loc[labels].to_numpy()
-    if isinstance(strata, pd.Series) and not isinstance(strata.index, pd.RangeIndex):
-        check_labels_match(labels, strata.index, left_name="the matrices",
-                           right_name="`strata`",
-                           fix="Give one stratum label for every site of the matrices.")
-        return strata.loc[labels].to_numpy()
-    return strata

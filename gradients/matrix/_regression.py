@@ -10,9 +10,9 @@ import pandas as pd
 
 from .._errors import InputError
 from .._result import ResultMixin
-from .._validation import RNGLike, check_n_resamples, check_rng
+from .._validation import RNGLike, check_n_jobs, check_n_resamples, check_rng
 from ..permutation import PermutationPlan, permutation_test
-from ._inputs import MatrixLike, align_matrices, align_strata, build_plan, check_jobs, square_of
+from ._inputs import MatrixLike, align_matrices, build_plan, square_of
 from ._kernels import cross_products, numba_threads
 
 __all__ = ["VIF_WARNING", "MatrixRegressionResult", "matrix_regression"]
@@ -138,7 +138,7 @@ def matrix_regression(
     np.True_
     """
     n_resamples = check_n_resamples(n_resamples)
-    n_jobs = check_jobs(n_jobs)
+    n_jobs = check_n_jobs(n_jobs)
     gen = check_rng(rng)
     if not isinstance(predictors, Mapping) or not predictors:
         raise InputError("`predictors` must be a non-empty mapping name -> distance matrix, "
@@ -195,7 +195,7 @@ def matrix_regression(
     t_signed = np.sign(b_obs) * obs[1:]
     big = square_of(yc)
 
-    plan = build_plan(n, scheme=scheme, strata=align_strata(strata, labels),
+    plan = build_plan(n, scheme=scheme, strata=strata,
                       n_resamples=n_resamples, rng=gen, labels=labels)
     with numba_threads(n_jobs):
         res = permutation_test(lambda orders: from_cross(cross_products(xc, big, orders)),

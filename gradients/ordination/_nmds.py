@@ -14,10 +14,12 @@ from scipy.spatial.distance import pdist
 
 from .._errors import InputError
 from .._result import ResultMixin
-from .._validation import check_choice, check_rng
+from .._validation import check_choice, check_n_jobs, check_rng
 from ..distance._matrix import DistanceMatrix, as_distance_matrix
 from ._common import axis_names, orient_columns
 from ._kernels import MonotoneOrder, StressFunction, stress_fit
+from ._pcoa import pcoa
+from ._scores import as_scores, taxon_scores
 
 if TYPE_CHECKING:
     from numpy.typing import ArrayLike
@@ -108,8 +110,6 @@ class NMDSResult(ResultMixin):
 
     def taxon_scores(self, community: pd.DataFrame) -> pd.DataFrame:
         """Weighted-average taxon scores on these axes; see :func:`taxon_scores`."""
-        from ._scores import taxon_scores
-
         return taxon_scores(self, community)
 
 
@@ -126,13 +126,6 @@ def _check_tol(tol: object) -> float:
     return float(tol)
 
 
-def _check_n_jobs(n_jobs: object) -> int:
-    ok = isinstance(n_jobs, numbers.Integral) and not isinstance(n_jobs, bool)
-    if not ok or int(n_jobs) == 0 or int(n_jobs) < -1:
-        raise InputError(f"`n_jobs` must be a positive integer or -1 (all cores); got {n_jobs!r}.")
-    return int(n_jobs)
-
-
 def _normalise(x: np.ndarray) -> np.ndarray:
     """Centre and scale a configuration to unit root-mean-square distance from the centroid."""
     x = x - x.mean(axis=0)
@@ -144,8 +137,6 @@ def _initial(dm: DistanceMatrix, init: object, p: int,
              seed: np.random.SeedSequence) -> tuple[np.ndarray, str]:
     n = dm.n
     if init is not None:
-        from ._scores import as_scores
-
         frame = as_scores(init, sites=dm.labels)
         if frame.shape[1] < p:
             raise InputError(f"`init` has {frame.shape[1]} column(s); {p} are needed for "
@@ -155,8 +146,6 @@ def _initial(dm: DistanceMatrix, init: object, p: int,
             raise InputError("`init` places every site at the same point; give a configuration "
                              "that separates the sites.")
         return _normalise(x), "init"
-    from ._pcoa import pcoa
-
     scores = pcoa(dm, dimensions=p).scores.to_numpy()
     x = np.zeros((n, p))
     x[:, :scores.shape[1]] = scores
@@ -301,7 +290,7 @@ def nmds(
     max_iter = _check_positive_int("max_iter", max_iter)
     tol = _check_tol(tol)
     check_choice("ties", ties, TIES)
-    n_jobs = _check_n_jobs(n_jobs)
+    n_jobs = check_n_jobs(n_jobs)
     generator = check_rng(rng)
     n = dm.n
     if n < p + 2:

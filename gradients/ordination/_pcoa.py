@@ -16,6 +16,7 @@ from .._result import ResultMixin
 from .._validation import check_choice
 from ..distance._matrix import DistanceMatrix, as_distance_matrix
 from ._common import axis_names, orient_columns
+from ._scores import taxon_scores
 
 if TYPE_CHECKING:
     from numpy.typing import ArrayLike
@@ -69,8 +70,6 @@ class PCoAResult(ResultMixin):
 
     def taxon_scores(self, community: pd.DataFrame) -> pd.DataFrame:
         """Weighted-average taxon scores on these axes; see :func:`taxon_scores`."""
-        from ._scores import taxon_scores
-
         return taxon_scores(self, community)
 
 

@@ -1,4 +1,9 @@
-"""Site scores from any source, aligned by site label, and weighted-average taxon scores."""
+"""Site scores from any source, aligned by site label, and weighted-average taxon scores.
+
+:func:`as_scores` is the one way in the suite to turn site scores into a checked, labelled
+table: an ordination result (anything with a ``scores`` table, so no result class is named
+here) or scores computed elsewhere and imported as a DataFrame.
+"""
 
 from __future__ import annotations
 
@@ -11,17 +16,20 @@ import pandas as pd
 
 from .._errors import InputError, format_items
 from .._validation import check_labels_match
+from ._common import check_numeric_table
 
-__all__ = ["as_scores", "taxon_scores"]
+__all__ = ["AxesLike", "as_scores", "taxon_scores"]
+
+AxesLike = int | Sequence[str] | None
 
 
-def _from_result(obj: Any) -> pd.DataFrame | None:
-    from ._nmds import NMDSResult
-    from ._pca import PCAResult
-    from ._pcoa import PCoAResult
-
-    if isinstance(obj, PCoAResult | NMDSResult | PCAResult):
-        return obj.scores
+def _scores_table(obj: Any) -> pd.DataFrame | pd.Series | None:
+    """The table of site scores: the object itself, or its ``scores`` table (duck typing)."""
+    if isinstance(obj, pd.DataFrame | pd.Series):
+        return obj
+    inner = getattr(obj, "scores", None)
+    if isinstance(inner, pd.DataFrame):  # pcoa, nmds, pca results, or any result like them
+        return inner
     return None
 
 
@@ -44,7 +52,7 @@ def _select_axes(frame: pd.DataFrame, axes: object) -> pd.DataFrame:
         k = int(axes)
         if k < 1 or k > frame.shape[1]:
             raise InputError(f"`axes={k}` asks for {k} axes but the scores have "
-                             f"{frame.shape[1]} ({format_items(frame.columns)}).")
+                             f"{frame.shape[1]} column(s): {format_items(frame.columns)}.")
         return frame.iloc[:, :k]
     if isinstance(axes, str):
         axes = [axes]
@@ -56,8 +64,8 @@ def _select_axes(frame: pd.DataFrame, axes: object) -> pd.DataFrame:
         raise InputError("`axes` is empty; name at least one column of the scores.")
     missing = [a for a in wanted if a not in frame.columns]
     if missing:
-        raise InputError(f"Axis column(s) {format_items(missing)} are not in the scores; they "
-                         f"have {format_items(frame.columns)}.", columns=missing)
+        raise InputError(f"`axes` names column(s) {format_items(missing)} that the scores do "
+                         f"not have; they have {format_items(frame.columns)}.", columns=missing)
     if len(set(wanted)) != len(wanted):
         raise InputError(f"`axes` names a column more than once: {format_items(wanted)}.")
     return frame.loc[:, wanted]
@@ -67,25 +75,28 @@ def as_scores(
     obj: Any,
     *,
     sites: Sequence[object] | pd.Index | None = None,
-    axes: int | Sequence[str] | None = None,
+    axes: AxesLike = None,
 ) -> pd.DataFrame:
     """Site scores as a labelled DataFrame of floats, from an ordination result or a table.
 
-    Use it wherever site scores are expected: it accepts the result of :func:`pcoa`,
-    :func:`nmds` or :func:`pca` (their ``scores``), or any DataFrame of site scores computed
-    elsewhere (rows labelled by site, numeric columns, one per axis).
+    Use it wherever site scores are expected (the fits use it too): it accepts any object
+    with a ``scores`` DataFrame, such as the results of :func:`pcoa`, :func:`nmds` and
+    :func:`pca`, or any DataFrame of site scores computed elsewhere (rows labelled by site,
+    numeric columns, one per axis).
 
     Parameters
     ----------
-    obj : PCoAResult, NMDSResult, PCAResult, pandas.DataFrame or pandas.Series
-        The scores. A Series is one axis. A numpy array is accepted only together with
+    obj : ordination result, pandas.DataFrame or pandas.Series
+        The scores: an object with a ``scores`` DataFrame (its type is not checked), or the
+        table itself. A Series is one axis. A numpy array is accepted only together with
         `sites`, whose labels it then takes in row order.
     sites : sequence of labels, optional
         Align to these sites: the result has exactly these rows, in this order. Every site in
         `sites` must have scores and every site with scores must be in `sites`; otherwise an
         :class:`InputError` names the sites found on only one side.
     axes : int or sequence of str, optional
-        Keep the first ``axes`` columns, or the columns named.
+        Keep the first ``axes`` columns, or the columns named (in that order). Only the
+        columns kept are checked.
 
     Returns
     -------
@@ -102,17 +113,15 @@ def as_scores(
     --------
     >>> import pandas as pd
     >>> from gradients.ordination import as_scores
-    >>> s = pd.DataFrame({"MDS1": [0.1, -0.2, 0.3]}, index=["b", "a", "c"])
-    >>> as_scores(s, sites=["a", "b", "c"])["MDS1"].tolist()
+    >>> s = pd.DataFrame({"dim1": [0.1, -0.2, 0.3]}, index=["b", "a", "c"])
+    >>> as_scores(s, sites=["a", "b", "c"])["dim1"].tolist()
     [-0.2, 0.1, 0.3]
     """
-    frame = _from_result(obj)
+    frame = _scores_table(obj)
+    if isinstance(frame, pd.Series):
+        frame = frame.to_frame(name=frame.name if frame.name is not None else "axis1")
     if frame is None:
-        if isinstance(obj, pd.Series):
-            frame = obj.to_frame(name=obj.name if obj.name is not None else "axis1")
-        elif isinstance(obj, pd.DataFrame):
-            frame = obj
-        elif isinstance(obj, np.ndarray | list | tuple):
+        if isinstance(obj, np.ndarray | list | tuple):
             if sites is None:
                 raise InputError(
                     "Scores given as an array carry no site labels; pass a DataFrame labelled "
@@ -127,7 +136,8 @@ def as_scores(
                                  columns=[f"axis{i + 1}" for i in range(array.shape[1])])
         else:
             raise InputError(
-                "Scores must be a pcoa/nmds/pca result or a DataFrame of site scores (sites x "
+                "Scores must be an ordination result (an object with a `scores` DataFrame, such "
+                "as the result of pcoa, nmds or pca) or a DataFrame of site scores (sites x "
                 f"axes); got {type(obj).__name__}."
             )
     if frame.shape[1] == 0:
@@ -207,8 +217,6 @@ def taxon_scores(scores: Any, community: pd.DataFrame) -> pd.DataFrame:
        van Tongeren, O. F. R. (eds), Data Analysis in Community and Landscape Ecology,
        pp. 91–173. Pudoc, Wageningen.
     """
-    from ._pca import check_numeric_table
-
     comm = check_numeric_table(community, name="community")
     values = comm.to_numpy()
     if (values < 0).any():

@@ -12,7 +12,7 @@ import numpy as np
 
 from .._errors import InputError
 from .._result import ResultMixin
-from .._validation import check_alternative
+from .._validation import check_alternative, check_n_jobs
 from ._plan import PermutationPlan
 from ._progress import current_reporter
 from ._pvalue import count_extreme, extreme_mask, pvalue_from_counts
@@ -152,9 +152,7 @@ def permutation_test(
     alternative = check_alternative(alternative)
     if not isinstance(plan, PermutationPlan):
         raise InputError("`plan` must come from permutation_plan() or custom_plan().")
-    if not isinstance(n_jobs, numbers.Integral) or isinstance(n_jobs, bool) or n_jobs == 0 \
-            or n_jobs < -1:
-        raise InputError(f"`n_jobs` must be a positive integer or -1 (all cores); got {n_jobs!r}.")
+    n_jobs = check_n_jobs(n_jobs)
     if early_stop is not None:
         if not isinstance(early_stop, numbers.Integral) or early_stop < 1:
             raise InputError(f"`early_stop` must be a positive integer; got {early_stop!r}.")

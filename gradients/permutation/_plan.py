@@ -18,7 +18,7 @@ import numpy as np
 import pandas as pd
 
 from .._errors import InputError, format_items
-from .._validation import check_choice, check_n_resamples
+from .._validation import align_strata, check_choice, check_n_resamples, seed_sequence
 from ._shuffle import shuffle_segments
 
 __all__ = [
@@ -35,23 +35,6 @@ SCHEMES = ("free", "strata", "cyclic", "toroidal", "blocks")
 #: Batches are fixed by the plan, never by the number of workers.
 DEFAULT_BATCH = 1000
 _MAX_BATCH_CELLS = 4_000_000  # bound (batch x n_sites) so a batch of orders stays ~32 MB
-
-
-def seed_sequence(rng: object) -> np.random.SeedSequence:
-    """A root :class:`~numpy.random.SeedSequence` from an ``rng`` argument (SPEC 7).
-
-    An int seeds it directly; a :class:`numpy.random.Generator` is asked for 128 bits (so the
-    same generator state gives the same plan); None draws fresh entropy from the operating system.
-    """
-    if isinstance(rng, np.random.SeedSequence):
-        return rng
-    if rng is None:
-        return np.random.SeedSequence()
-    if isinstance(rng, np.random.Generator):
-        return np.random.SeedSequence(rng.integers(0, 2**32, size=4, dtype=np.uint64).tolist())
-    if isinstance(rng, numbers.Integral) and not isinstance(rng, bool) and int(rng) >= 0:
-        return np.random.SeedSequence(int(rng))
-    raise InputError(f"`rng` must be an int, a numpy.random.Generator or None; got {rng!r}.")
 
 
 @dataclass(frozen=True, eq=False)
@@ -260,18 +243,9 @@ def _count_distinct(scheme: str, n: int, groups: tuple[np.ndarray, ...],
 
 
 # --------------------------------------------------------------------------- groups
-def _groups_from_labels(labels: Sequence[object] | np.ndarray | pd.Series, n: int,
-                        name: str) -> tuple[np.ndarray, ...]:
-    values = pd.Series(labels).reset_index(drop=True) if not isinstance(labels, pd.Series) \
-        else labels.reset_index(drop=True)
-    if len(values) != n:
-        raise InputError(f"`{name}` must give one label per site: {len(values)} labels for "
-                         f"{n} sites.")
-    if values.isna().any():
-        missing = np.flatnonzero(values.isna().to_numpy())
-        raise InputError(f"`{name}` is missing for site position(s) "
-                         f"{format_items(missing.tolist(), quote=False)}; give every site one.")
-    codes, _ = pd.factorize(values, sort=False)
+def _groups_from_labels(labels: np.ndarray) -> tuple[np.ndarray, ...]:
+    """Site positions of each group, groups in order of first appearance."""
+    codes, _ = pd.factorize(pd.Series(labels), sort=False)
     return tuple(np.flatnonzero(codes == c).astype(np.intp) for c in range(codes.max() + 1))
 
 
@@ -297,7 +271,7 @@ def site_ranks(site_labels: Sequence[object] | np.ndarray | pd.Index) -> np.ndar
 
 
 def _canonical_groups(scheme: str, n: int, groups: tuple[np.ndarray, ...],
-                      site_labels: object, strata: object) -> tuple[np.ndarray, ...]:
+                      site_labels: object, strata: np.ndarray | None) -> tuple[np.ndarray, ...]:
     """The segments to shuffle, members in ascending label order, strata by stratum label.
 
     Shuffling site positions listed in label order is Fisher-Yates on the label-sorted sites,
@@ -307,9 +281,7 @@ def _canonical_groups(scheme: str, n: int, groups: tuple[np.ndarray, ...],
     rank = site_ranks(site_labels)  # length and uniqueness checked by permutation_plan
     if scheme == "free":
         return (np.argsort(rank).astype(np.intp),)
-    values = pd.Series(strata).reset_index(drop=True) if not isinstance(strata, pd.Series) \
-        else strata.reset_index(drop=True)
-    first = [values.iloc[g[0]] for g in groups]
+    first = [strata[g[0]] for g in groups]  # type: ignore[index]
     ordered = [groups[i] for i in _sort_key(first)]
     return tuple(g[np.argsort(rank[g], kind="stable")] for g in ordered)
 
@@ -399,12 +371,15 @@ def permutation_plan(
     n_resamples = check_n_resamples(n_resamples)
     groups: tuple[np.ndarray, ...] = ()
     grid: tuple[int, int] | None = None
+    if scheme != "strata" and strata is not None and scheme not in ("cyclic",):
+        raise InputError(f"`strata` does not apply to scheme={scheme!r}.")
+    strata = align_strata(strata, n, name="strata")  # positional: one label per site, in order
     if scheme == "strata":
         if strata is None:
             raise InputError("scheme='strata' needs `strata`, one group label per site.")
-        groups = _groups_from_labels(strata, n, "strata")
+        groups = _groups_from_labels(strata)
     elif scheme == "cyclic":
-        groups = (_groups_from_labels(strata, n, "strata") if strata is not None
+        groups = (_groups_from_labels(strata) if strata is not None
                   else (np.arange(n, dtype=np.intp),))
     elif scheme == "toroidal":
         if shape is None or len(shape) != 2 or int(shape[0]) * int(shape[1]) != n:
@@ -414,14 +389,12 @@ def permutation_plan(
     elif scheme == "blocks":
         if blocks is None:
             raise InputError("scheme='blocks' needs `blocks`, one block label per site.")
-        groups = _groups_from_labels(blocks, n, "blocks")
+        groups = _groups_from_labels(align_strata(blocks, n, name="blocks"))  # type: ignore[arg-type]
         sizes = {g.size for g in groups}
         if len(sizes) != 1:
             raise InputError("Whole blocks can only be exchanged when all blocks have the same "
                              f"number of sites; sizes found: {sorted(sizes)}. Use "
                              "scheme='strata' to permute within blocks instead.")
-    if scheme != "strata" and strata is not None and scheme not in ("cyclic",):
-        raise InputError(f"`strata` does not apply to scheme={scheme!r}.")
 
     n_distinct = _count_distinct(scheme, n, groups, grid, cap=max(n_resamples, 1))
     countable = n_distinct <= n_resamples

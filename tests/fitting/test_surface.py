@@ -243,7 +243,10 @@ def test_input_errors():
     gap.iloc[3] = np.nan
     with pytest.raises(InputError, match="missing"):
         fit_surface(sc, gap, n_resamples=0)
-    assert fit_surface(sc, gap, n_resamples=0, missing="complete").n == 29
+    fit = fit_surface(sc, gap, n_resamples=0, missing="complete")
+    assert fit.n_sites == 29
+    with pytest.warns(DeprecationWarning, match="SurfaceFit.n is deprecated.*use .n_sites"):
+        assert fit.n == 29
 
 
 def test_reml_choice_minimises_directly_computed_restricted_likelihood():
@@ -308,7 +311,7 @@ def test_curvature_statistic_is_the_share_of_the_plane_residuals_removed():
     # smooth's comes from a fit of the same data with the same fixed lambda; the observed
     # curvature statistic is 1 - RSS_smooth / RSS_plane. With lambda chosen on the test's
     # grid it is close to the refined REML fit's value.
-    from gradients.fitting._surface import _curvature_statistic
+    from gradients.fitting._surface_stats import curvature_statistic
     from gradients.fitting._tprs import demmler_reinsch_svd, lambda_grid
 
     sc, rng = _cloud(n=50, seed=11)
@@ -317,13 +320,13 @@ def test_curvature_statistic_is_the_share_of_the_plane_residuals_removed():
     fit = fit_surface(sc, y, method="reml", n_resamples=0)
     x, s = fit._basis.model_matrix, fit._basis.penalty
     grid = lambda_grid(demmler_reinsch_svd(x, s)[1][0], 120)
-    stat = _curvature_statistic(x, s, y.to_numpy(), x[:, -3:], "reml", grid, None)
+    stat = curvature_statistic(x, s, y.to_numpy(), x[:, -3:], "reml", grid, None)
     observed = float(stat(np.arange(50)[None, :])[0])
     rss_plane = sm.OLS(y.to_numpy(), sm.add_constant(sc.to_numpy())).fit().ssr
     rss_smooth = float(((y - fit.fitted) ** 2).sum())
     assert observed == pytest.approx(1 - rss_smooth / rss_plane, abs=1e-2)
     fixed = fit_surface(sc, y, smoothing=fit.smoothing, n_resamples=0)
-    stat_fixed = _curvature_statistic(x, s, y.to_numpy(), x[:, -3:], "reml", grid,
+    stat_fixed = curvature_statistic(x, s, y.to_numpy(), x[:, -3:], "reml", grid,
                                       fit.smoothing)
     rss_fixed = float(((y - fixed.fitted) ** 2).sum())
     assert float(stat_fixed(np.arange(50)[None, :])[0]) == pytest.approx(
@@ -331,7 +334,7 @@ def test_curvature_statistic_is_the_share_of_the_plane_residuals_removed():
     # a shifted plane added to the data leaves the statistic unchanged (theory: the plane is
     # the unpenalised part of the basis)
     tilted = y.to_numpy() + 3.0 - 2.0 * sc.axis1.to_numpy() + sc.axis2.to_numpy()
-    stat2 = _curvature_statistic(x, s, tilted, x[:, -3:], "reml", grid, None)
+    stat2 = curvature_statistic(x, s, tilted, x[:, -3:], "reml", grid, None)
     orders = permutation_plan(50, n_resamples=20, rng=0).batch(0)
     np.testing.assert_allclose(stat2(orders), stat(orders), atol=1e-10)
 

@@ -115,7 +115,7 @@ def test_known_decay_is_recovered(model, slope):
     # probability about 6e-5), and the halving quantity follows from the slope (Nekola &
     # White 1999: ln 2 / -b; for the power law the factor 2^(-1/b)).
     d, geo, g, _ = _decay_data(40, 1, slope=slope, model=model)
-    res = distance_decay(d, geo, model=model, n_boot=200, rng=0)
+    res = distance_decay(d, geo, model=model, n_resamples=200, rng=0)
     u = g if model == "exponential" else np.log(g)
     se = 0.05 / np.sqrt(np.sum((u - u.mean()) ** 2))
     assert abs(res.slope - slope) < 4 * se
@@ -134,7 +134,7 @@ def test_site_bootstrap_equals_explicit_resampling_of_sites():
     # taking all pairs of drawn sites except a site with its own copy, and refitting with
     # numpy.polyfit (Nekola & White 1999: resample sites, not pairs).
     d, geo, g, logs = _decay_data(15, 2)
-    res = distance_decay(d, geo, n_boot=5, rng=123)
+    res = distance_decay(d, geo, n_resamples=5, rng=123)
     gen = np.random.default_rng(123)  # same stream: multinomial counts of each site, drawn
     # over the label-sorted sites (gradients.permutation.site_ranks) and mapped back
     counts = gen.multinomial(15, np.full(15, 1 / 15), size=5)[:, site_ranks(d.labels)]
@@ -145,8 +145,8 @@ def test_site_bootstrap_equals_explicit_resampling_of_sites():
         keep = sites[i] != sites[j]
         a, c = sites[i][keep], sites[j][keep]
         slope, intercept = np.polyfit(gs[a, c], ls[a, c], 1)
-        assert res.bootstrap[b, 0] == pytest.approx(slope, rel=1e-9)
-        assert res.bootstrap[b, 1] == pytest.approx(intercept, rel=1e-9)
+        assert res.bootstrap_distribution[b, 0] == pytest.approx(slope, rel=1e-9)
+        assert res.bootstrap_distribution[b, 1] == pytest.approx(intercept, rel=1e-9)
 
 
 def test_zero_similarities_dropped_with_a_note_or_kept_with_an_offset():
@@ -154,10 +154,10 @@ def test_zero_similarities_dropped_with_a_note_or_kept_with_an_offset():
     values = d.condensed.copy()
     values[:5] = 1.0  # five pairs sharing nothing
     d0 = DistanceMatrix(values, d.labels)
-    dropped = distance_decay(d0, geo, n_boot=50, rng=0)
+    dropped = distance_decay(d0, geo, n_resamples=50, rng=0)
     assert dropped.n_dropped == 5 and dropped.n_pairs == 61
     assert any("5 pair(s) of sites with zero similarity" in note for note in dropped.notes)
-    kept = distance_decay(d0, geo, offset=0.01, n_boot=50, rng=0)
+    kept = distance_decay(d0, geo, offset=0.01, n_resamples=50, rng=0)
     assert kept.n_dropped == 0 and kept.n_pairs == 66
 
 
@@ -170,6 +170,45 @@ def test_decay_messages():
         distance_decay(d, geo, model="linear")
     with pytest.raises(InputError, match="`offset` must be a positive number"):
         distance_decay(d, geo, offset=-1.0)
+    with pytest.raises(InputError, match=r"`confidence_level` must be a number between 0 and 1"):
+        distance_decay(d, geo, confidence_level=95)
+    with pytest.raises(InputError, match="`n_resamples` must be a positive integer; got 0"):
+        distance_decay(d, geo, n_resamples=0)
+
+
+def test_decay_interval_is_the_percentile_interval_at_confidence_level():
+    # Percentile interval (Efron & Tibshirani 1993, ch. 13): the (1 - level)/2 and
+    # (1 + level)/2 quantiles of the bootstrap slopes.
+    d, geo, _, _ = _decay_data(15, 4)
+    res = distance_decay(d, geo, n_resamples=300, confidence_level=0.8, rng=7)
+    assert res.confidence_level == 0.8 and res.n_resamples == 300
+    assert res.bootstrap_distribution.shape == (300, 2)
+    lo, hi = np.quantile(res.bootstrap_distribution[:, 0], [0.1, 0.9])
+    assert res.slope_interval == pytest.approx((lo, hi), rel=1e-12)
+
+
+def test_old_decay_keywords_and_fields_still_work_for_one_release():
+    d, geo, _, _ = _decay_data(12, 5)
+    new = distance_decay(d, geo, n_resamples=60, confidence_level=0.9, rng=3)
+    with pytest.warns(DeprecationWarning, match="`n_boot` is deprecated.*use `n_resamples`") \
+            as caught:
+        old = distance_decay(d, geo, n_boot=60, confidence_level=0.9, rng=3)
+    assert caught[0].filename == __file__  # the warning points at the caller's line
+    np.testing.assert_array_equal(old.bootstrap_distribution, new.bootstrap_distribution)
+    with pytest.warns(DeprecationWarning, match="`confidence` is deprecated.*"
+                                                "use `confidence_level`"):
+        old = distance_decay(d, geo, n_resamples=60, confidence=0.9, rng=3)
+    assert old.slope_interval == new.slope_interval
+    with pytest.raises(TypeError, match="got both `n_boot` and `n_resamples`"):
+        distance_decay(d, geo, n_boot=60, n_resamples=60)
+    with pytest.raises(TypeError, match="got both `confidence` and `confidence_level`"):
+        distance_decay(d, geo, confidence=0.9, confidence_level=0.9)
+    for field, value in (("n_boot", 60), ("confidence", 0.9)):
+        with pytest.warns(DeprecationWarning, match=f"DistanceDecayResult.{field} is deprecated"):
+            assert getattr(new, field) == value
+    with pytest.warns(DeprecationWarning, match="use .bootstrap_distribution") as caught:
+        assert new.bootstrap is new.bootstrap_distribution
+    assert caught[0].filename == __file__
 
 
 def test_spearman_correlogram_is_the_pearson_correlogram_of_ranks():

@@ -113,7 +113,7 @@ def test_constant_matrices_with_rounding_in_their_mean_are_refused(value):
     with pytest.raises(InputError, match="`response` has the same value for every pair"):
         matrix_regression(const, {"b": y}, n_resamples=9, rng=0)
     with pytest.raises(InputError, match="same similarity for every pair"):
-        distance_decay(const, y, n_boot=9, rng=0)
+        distance_decay(const, y, n_resamples=9, rng=0)
 
 
 def test_partial_mantel_with_no_residual_freedom_is_refused():

@@ -58,8 +58,8 @@ def test_distance_decay_bootstrap_does_not_depend_on_site_order():
     s = 0.8 * np.exp(-0.02 * g + rng.normal(0, 0.05, g.size))
     d, geo = DistanceMatrix(1 - s, labels), DistanceMatrix(g, labels)
     order = list(rng.permutation(labels))
-    a = distance_decay(d, geo, n_boot=200, rng=5)
-    b = distance_decay(d.subset(order), geo.subset(order), n_boot=200, rng=5)
+    a = distance_decay(d, geo, n_resamples=200, rng=5)
+    b = distance_decay(d.subset(order), geo.subset(order), n_resamples=200, rng=5)
     pd.testing.assert_frame_equal(a.table, b.table, rtol=1e-9)
 
 

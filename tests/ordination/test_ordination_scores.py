@@ -16,7 +16,7 @@ SITES = ["a", "b", "c", "d", "e", "f"]
 
 def _scores() -> pd.DataFrame:
     rng = np.random.default_rng(0)
-    return pd.DataFrame(rng.normal(size=(6, 3)), index=SITES, columns=["MDS1", "MDS2", "MDS3"])
+    return pd.DataFrame(rng.normal(size=(6, 3)), index=SITES, columns=["dim1", "dim2", "dim3"])
 
 
 def test_results_of_each_ordination():
@@ -29,6 +29,24 @@ def test_results_of_each_ordination():
     table = pd.DataFrame(x, index=list("pqrstuvw"), columns=["pH", "Cu", "Zn"])
     res = pca(table, scaling="correlation")
     pd.testing.assert_frame_equal(as_scores(res), res.scores)
+
+
+def test_any_object_with_a_scores_table_is_accepted():
+    # Duck typing: the result's type is not checked, only that it carries a `scores` table,
+    # so a result of another stage (or of the user's own code) is read the same way.
+    class Imported:
+        scores = _scores()
+
+    pd.testing.assert_frame_equal(as_scores(Imported(), axes=["dim2"]), _scores()[["dim2"]])
+
+    class NoTable:
+        scores = (1.0, 2.0)
+
+    with pytest.raises(InputError, match=r"an object with a `scores` DataFrame.*got NoTable"):
+        as_scores(NoTable())
+    # a DataFrame with a column named "scores" is a table of scores, not a result
+    frame = pd.DataFrame({"scores": [0.5, -0.5]}, index=["a", "b"])
+    assert list(as_scores(frame).columns) == ["scores"]
 
 
 def test_dataframe_aligned_by_label():
@@ -63,8 +81,8 @@ def test_non_numeric_missing_and_duplicates_refused():
     with pytest.raises(InputError, match=r"'flag'.* not numeric"):
         as_scores(s.assign(flag=True))
     nan = s.copy()
-    nan.loc["c", "MDS2"] = np.nan
-    with pytest.raises(InputError, match=r"\('c', 'MDS2'\)"):
+    nan.loc["c", "dim2"] = np.nan
+    with pytest.raises(InputError, match=r"\('c', 'dim2'\)"):
         as_scores(nan)
     dup = s.copy()
     dup.index = ["a", "a", "c", "d", "e", "f"]
@@ -78,12 +96,13 @@ def test_non_numeric_missing_and_duplicates_refused():
 
 def test_axes_selection():
     s = _scores()
-    assert list(as_scores(s, axes=2).columns) == ["MDS1", "MDS2"]
-    assert list(as_scores(s, axes=["MDS3", "MDS1"]).columns) == ["MDS3", "MDS1"]
+    assert list(as_scores(s, axes=2).columns) == ["dim1", "dim2"]
+    assert list(as_scores(s, axes=["dim3", "dim1"]).columns) == ["dim3", "dim1"]
     # columns not chosen are not checked
-    assert list(as_scores(s.assign(note="x"), axes=["MDS1"]).columns) == ["MDS1"]
-    with pytest.raises(InputError, match=r"'MDS9'.* not in the scores"):
-        as_scores(s, axes=["MDS9"])
+    assert list(as_scores(s.assign(note="x"), axes=["dim1"]).columns) == ["dim1"]
+    with pytest.raises(InputError, match=r"`axes` names column\(s\) 'dim9' that the scores do "
+                                         r"not have; they have 'dim1', 'dim2', 'dim3'\."):
+        as_scores(s, axes=["dim9"])
     with pytest.raises(InputError, match="asks for 4 axes"):
         as_scores(s, axes=4)
 
