@@ -31,11 +31,7 @@ LEVEL = {stage: i for i, level in enumerate(STAGE_LEVELS) for stage in level}
 BASE = "(shared private modules)"
 # Import cycles known when this check was written, each broken by a change under way on another
 # branch; an entry must be removed once its cycle is gone (the test says so).
-KNOWN_CYCLES: dict[frozenset[str], str] = {
-    frozenset({"gradients.ordination._nmds", "gradients.ordination._pcoa",
-               "gradients.ordination._scores"}):
-        "issue 11, item 4: _scores accepts anything with a .scores table",
-}
+KNOWN_CYCLES: dict[frozenset[str], str] = {}
 
 
 def test_version_single_sourced():
