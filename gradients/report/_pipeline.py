@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import time
 import zlib
-from collections.abc import Callable
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -21,7 +21,7 @@ import pandas as pd
 from .._errors import InputError
 from ._model import Section
 
-__all__ = ["STEPS", "Context", "rng_for", "run_steps"]
+__all__ = ["Context", "Skip", "Step", "rng_for", "run_steps"]
 
 
 def rng_for(seed: int, name: str) -> np.random.Generator:
@@ -61,57 +61,51 @@ class Context:
         return func(*args, **kwargs)
 
 
-Step = Callable[[Context], None]
-STEPS: list[tuple[str, str | None, Step]] = []
-#: Steps whose input errors stop the run (the rest of the job depends on them).
-REQUIRED: set[str] = set()
+StepFunction = Callable[[Context], None]
 
 
-def step(name: str, setting: str | None = None, *,
-         required: bool = False) -> Callable[[Step], Step]:
-    """Register a step; ``setting`` is the ``analyses.*`` switch that turns it off.
+@dataclass(frozen=True)
+class Step:
+    """One analysis step of a run.
 
-    An :class:`InputError` in a ``required`` step stops the run; in any other step it only
-    skips that analysis (listed with its reason in the report).
+    ``setting`` is the ``analyses.*`` switch that turns it off (None: always runs). An
+    :class:`InputError` in a ``required`` step stops the run (the rest of the job depends on
+    it); in any other step it only skips that analysis (listed with its reason in the report).
     """
 
-    def deco(func: Step) -> Step:
-        STEPS.append((name, setting, func))
-        if required:
-            REQUIRED.add(name)
-        return func
-
-    return deco
+    name: str
+    run: StepFunction
+    setting: str | None = None
+    required: bool = False
 
 
 class Skip(Exception):
     """Raised by a step whose precondition does not hold; the message says why."""
 
 
-def run_steps(ctx: Context, steps: list[tuple[str, str | None, Step]] | None = None) -> None:
-    """Run every registered step in order (telling an installed progress reporter)."""
+def run_steps(ctx: Context, steps: Sequence[Step]) -> None:
+    """Run ``steps`` in the order given (telling an installed progress reporter)."""
     from ..permutation import current_reporter
 
-    todo = [s for s in (steps if steps is not None else STEPS)
-            if s[1] is None or ctx.settings.get(s[1], True)]
+    todo = [s for s in steps if s.setting is None or ctx.settings.get(s.setting, True)]
     reporter = current_reporter()
-    for i, (name, _setting, func) in enumerate(todo):
+    for i, s in enumerate(todo):
         if reporter is not None:
             reporter("running analyses", i, len(todo))
         start = time.perf_counter()
         try:
-            func(ctx)
+            s.run(ctx)
         except ImportError as exc:
             if not (exc.name or "").startswith("gradients"):
                 raise
             continue  # analysis not part of this version of the suite: no trace in the report
         except Skip as exc:
-            ctx.skipped.append((name, str(exc)))
+            ctx.skipped.append((s.name, str(exc)))
         except InputError as exc:
-            if name in REQUIRED:
+            if s.required:
                 raise
-            ctx.skipped.append((name, str(exc)))
+            ctx.skipped.append((s.name, str(exc)))
         finally:
-            ctx.timings[name] = round(time.perf_counter() - start, 3)
+            ctx.timings[s.name] = round(time.perf_counter() - start, 3)
     if reporter is not None:
         reporter("running analyses", len(todo), len(todo))
