@@ -149,7 +149,8 @@ PLANTED = {
 
 def planted_truth_step(ctx: Context) -> None:
     """Demo only: a section comparing the planted truth with what the analyses found."""
-    from .steps._common import _fmt_p, _section  # the steps package lists this step
+    from ..fitting import fit_vectors
+    from .steps._common import _fmt_p, _section  # lazily: the steps package lists this step
 
     truth = ctx.results.get("demo")
     if truth is None:
@@ -192,22 +193,17 @@ def planted_truth_step(ctx: Context) -> None:
     table = pd.DataFrame(rows).set_index("effect")
     sec.tables["planted_truth"] = table
     sec.shown.append("planted_truth")
-    try:
-        from ..fitting import fit_vectors
-
-        site = truth.site_truth.loc[ctx.results["ordination"].scores.index,
-                                    ["contamination", "fines"]]
-        fit = fit_vectors(ctx.results["ordination"].scores, site.astype(float),
-                          n_resamples=ctx.n_resamples, rng=ctx.rng("planted"))
-        recovered = fit.table[["r2", "pvalue"]].copy()
-        recovered.index.name = "planted_gradient"
-        sec.tables["planted_gradients_on_ordination"] = recovered
-        sec.shown.append("planted_gradients_on_ordination")
-        sec.paragraphs.append(
-            "The true (unobserved) gradients fitted onto the ordination: "
-            + "; ".join(f"{k} r2 = {v.r2:.2f}" for k, v in recovered.iterrows())
-            + ". A high r2 means the ordination of the communities alone recovers the planted "
-            "gradient.")
-    except ImportError:
-        pass
+    site = truth.site_truth.loc[ctx.results["ordination"].scores.index,
+                                ["contamination", "fines"]]
+    fit = fit_vectors(ctx.results["ordination"].scores, site.astype(float),
+                      n_resamples=ctx.n_resamples, rng=ctx.rng("planted"))
+    recovered = fit.table[["r2", "pvalue"]].copy()
+    recovered.index.name = "planted_gradient"
+    sec.tables["planted_gradients_on_ordination"] = recovered
+    sec.shown.append("planted_gradients_on_ordination")
+    sec.paragraphs.append(
+        "The true (unobserved) gradients fitted onto the ordination: "
+        + "; ".join(f"{k} r2 = {v.r2:.2f}" for k, v in recovered.iterrows())
+        + ". A high r2 means the ordination of the communities alone recovers the planted "
+        "gradient.")
     ctx.sections.insert(1 if _section(ctx, "verdicts") is not None else 0, sec)

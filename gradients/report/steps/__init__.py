@@ -1,5 +1,15 @@
 """The analysis steps of a run, listed in the order they run, and the order of the sections.
 
+Each step reads its settings, calls the analysis functions of the earlier stages and arranges
+their results into a section (tables, figures, text) plus sentences for the methods paragraph.
+The tests and fits themselves are the analysis functions'; the steps compute only what joins
+them into a report: analysis units of the variables (log10, log-ratios, km), the Holm
+adjustment across hypotheses, correlations among the predictor matrices, and the verdict per
+hypothesis (see :mod:`.verdicts`). One module per stage: :mod:`.community` (community,
+environment, geography), :mod:`.ordination` (ordination and fitting), :mod:`.matrix` (the
+Mantel family, regression, correlogram, distance decay) and :mod:`.verdicts`; the demo's
+planted-truth step lives with the demo (``gradients.report._demo``).
+
 :data:`STEPS` is the one list :func:`~gradients.report._pipeline.run_steps` runs: each step
 needs what the steps before it left in the context (the community and environmental distances
 first, then the ordination, the fits and the matrix tests, and the verdicts built from them).

@@ -16,7 +16,7 @@ __all__ = ["biplot_step", "factors_step", "ordination_step", "surfaces_step", "v
 
 
 def ordination_step(ctx: Context) -> None:
-    from ...ordination import nmds, pcoa
+    from ...ordination import nmds, pcoa, taxon_scores
 
     d = ctx.results["community"]
     kind = ctx.settings["analyses.ordination"]
@@ -51,17 +51,7 @@ def ordination_step(ctx: Context) -> None:
     sec.tables["site_scores"] = scores
     for c in scores.columns:
         ctx.site_columns[c] = scores[c]
-    try:
-        taxa = res.taxon_scores(ctx.survey.community)
-    except (AttributeError, ImportError):
-        try:
-            from ...ordination import taxon_scores
-
-            taxa = taxon_scores(res, ctx.survey.community)
-        except ImportError:
-            taxa = None
-    if taxa is not None:
-        sec.tables["taxon_scores"] = taxa
+    sec.tables["taxon_scores"] = taxon_scores(res, ctx.survey.community)
     sec.notes.extend(res.notes)
     ctx.sections.append(sec)
     if kind == "nmds":
