@@ -151,6 +151,7 @@ def planted_truth_step(ctx: Context) -> None:
     """Demo only: a section comparing the planted truth with what the analyses found."""
     from ..fitting import fit_vectors
     from .steps._common import _fmt_p, _section  # lazily: the steps package lists this step
+    from .steps._rule import PARTLY, SUPPORTED
 
     truth = ctx.results.get("demo")
     if truth is None:
@@ -168,8 +169,8 @@ def planted_truth_step(ctx: Context) -> None:
                     row[col] = verdicts.loc[name, col]
         expected = strength != "none"
         found = str(row.get("found", ""))
-        if found:
-            row["recovered"] = (found != "not supported") == expected
+        if found:  # an effect is claimed only by these two verdicts
+            row["recovered"] = (found in (SUPPORTED, PARTLY)) == expected
         rows.append(row)
     geo = (ctx.results.get("mantel") or {}).get("geography")
     rows.append({"effect": "space", "planted": "weak",

@@ -16,6 +16,7 @@ EXPECTED_TABLES = {
     "site_scores", "taxon_scores", "nmds_starts", "mantel", "partial_mantel",
     "matrix_regression", "matrix_regression_fit", "correlogram", "distance_decay",
     "distance_decay_curve", "hypothesis_verdicts", "predictor_correlations", "planted_truth",
+    "mantel_spatial_check", "partial_mantel_spatial_check",
 }
 EXPECTED_FIGURES = {"ordination_biplot", "shepard", "correlogram", "distance_decay",
                     "hypotheses"}

@@ -24,8 +24,13 @@ def _spatial_kwargs(ctx: Context) -> dict[str, object]:
     return {"spatial_null": geo, "n_surrogates": ctx.n_resamples}
 
 
-def _spatial_reason(ctx: Context) -> str:
-    """Why the report ran no spatially constrained test, in project-file words."""
+def _spatial_reason(ctx: Context, name: str) -> str:
+    """Why the report ran no spatially constrained test for ``name``, in project-file words."""
+    if name == "geography":
+        return ("No spatial check and no spatially constrained p-value: this predictor is "
+                "itself the distance between sites, so the check for spatial structure does "
+                "not apply to it. Its p-value asks whether community turnover rises with "
+                "distance.")
     if ctx.results.get("geography") is not None and ctx.settings["design.strata"]:
         return ("Spatial autocorrelation was not checked: with `design.strata` set, the "
                 "spatially constrained null (Moran spectral randomisation), which does not keep "
@@ -37,22 +42,72 @@ def _spatial_reason(ctx: Context) -> str:
             "spatially constrained p-value.")
 
 
+def _is_structure_note(note: str) -> bool:
+    """A matrix-stage note on one test's spatial-structure check (said once per section)."""
+    return (note.startswith(("Both matrices are spatially structured",
+                             "Neither matrix shows spatial structure"))
+            or (note.startswith("Only ") and " is spatially structured (" in note))
+
+
 def _attributed_notes(results: dict[str, Any], ctx: Context | None = None) -> list[str]:
     """Notes of several results, each said once, prefixed by the names it applies to.
 
-    A note that every result carries is given without a prefix. With ``ctx``, the analyses'
-    advice to pass locations to a Python argument is said in project-file words instead.
+    A note that every result carries is given without a prefix. The per-test notes on the
+    spatial-structure check are left out (see :func:`_spatial_check`). With ``ctx``, the
+    analyses' advice to pass locations to a Python argument is said in project-file words.
     """
     owners: dict[str, list[str]] = {}
     for name, res in results.items():
         for note in res.notes:
+            if _is_structure_note(note):
+                continue
             if ctx is not None and note.startswith("Spatial autocorrelation was not checked"):
-                note = _spatial_reason(ctx)
+                note = _spatial_reason(ctx, name)
             names = owners.setdefault(note, [])
             if name not in names:
                 names.append(name)
     return [note if len(names) == len(results) else f"{', '.join(names)}: {note}"
             for note, names in owners.items()]
+
+
+def _spatial_check(sec: Section, results: dict[str, Any], label: str) -> None:
+    """The spatial-structure check of every test of a section: one table, one note."""
+    rows = []
+    for name, res in results.items():
+        check = res.spatial_structure
+        if check is None:
+            continue
+        rows.append({label: name, "predictor_r": check.loc["x", "statistic"],
+                     "predictor_pvalue": check.loc["x", "pvalue"],
+                     "community_r": check.loc["y", "statistic"],
+                     "community_pvalue": check.loc["y", "pvalue"],
+                     "both_structured": bool(check["structured"].astype(bool).all())})
+    if not rows:
+        return
+    table = pd.DataFrame(rows).set_index(label)
+    name = f"{sec.key}_spatial_check"
+    sec.tables[name] = table
+    sec.shown.append(name)
+    both = [str(k) for k in table.index[table["both_structured"].to_numpy(dtype=bool)]]
+    note = (f"Spatial check ({name}): Mantel correlation of the predictor (predictor_r) and "
+            "of the community dissimilarity (community_r) with the distance between sites, "
+            "one-sided; a matrix is spatially structured when its p-value is at most 0.05. ")
+    if len(both) == len(table):
+        note += ("Both matrices are spatially structured in every test: simple and partial "
+                 "Mantel tests then reject a true null too often (Guillot & Rousset 2013), so "
+                 "rely on pvalue_spatial, from the spatially constrained null, rather than "
+                 "pvalue.")
+    elif both:
+        note += (f"Both matrices are spatially structured for {', '.join(both)}: there simple "
+                 "and partial Mantel tests reject a true null too often (Guillot & Rousset "
+                 "2013), so rely on pvalue_spatial rather than pvalue. In the other tests at "
+                 "most one matrix is structured, the plain p-value is less exposed to spatial "
+                 "autocorrelation, and pvalue_spatial is given as a check.")
+    else:
+        note += ("In no test are both matrices spatially structured: the plain p-values are "
+                 "less exposed to spatial autocorrelation, and pvalue_spatial is given as a "
+                 "check.")
+    sec.notes.insert(0, note)
 
 
 def mantel_step(ctx: Context) -> None:
@@ -92,6 +147,7 @@ def mantel_step(ctx: Context) -> None:
     sec.tables["mantel"] = table
     sec.shown.append("mantel")
     sec.notes.extend(_attributed_notes(results, ctx))
+    _spatial_check(sec, results, "predictor")
     ctx.sections.append(sec)
     ctx.methods.append(
         "Mantel tests (Mantel 1967; Pearson r, sites permuted) of community dissimilarity "
@@ -136,6 +192,7 @@ def partial_mantel_step(ctx: Context) -> None:
     sec.tables["partial_mantel"] = table
     sec.shown.append("partial_mantel")
     sec.notes.extend(_attributed_notes(results, ctx))
+    _spatial_check(sec, results, "hypothesis")
     ctx.sections.append(sec)
     ctx.methods.append(
         "Partial Mantel tests (Smouse, Long & Sokal 1986) of each hypothesis controlling for "
