@@ -2,24 +2,29 @@
 
 from __future__ import annotations
 
+import numbers
 import shutil
+import warnings
 from pathlib import Path
 from typing import Any
 
 import pandas as pd
 
 from .._errors import InputError
+from .._validation import RNGLike, check_rng
 from ._model import Section
 from ._pipeline import Context
 from ._project import project_from_dict
 from ._run import analyse, write_report
 from ._writers import OutputFolder
 
-__all__ = ["DEMO_HYPOTHESES", "DEMO_PERMUTATIONS", "init_project", "planted_truth_step",
-           "project_template", "run_demo"]
+__all__ = ["DEMO_HYPOTHESES", "DEMO_PERMUTATIONS", "DEMO_SEED", "demo_seed", "init_project",
+           "planted_truth_step", "project_template", "run_demo"]
 
 #: Default permutations of the demo (and of the template project).
 DEMO_PERMUTATIONS = 999
+#: Default seed of the demo's permutations (and of the template project).
+DEMO_SEED = 1
 
 #: The demo's named hypotheses: two planted gradients and one group of variables that the
 #: generator makes inert (pH, organic matter) or only a nuisance (conductivity).
@@ -31,7 +36,7 @@ DEMO_HYPOTHESES: dict[str, tuple[str, ...]] = {
 
 
 def project_template(*, data_folder: str = "data", permutations: int = DEMO_PERMUTATIONS,
-                     seed: int = 1) -> str:
+                     seed: int = DEMO_SEED) -> str:
     """The text of a commented, runnable project file for the demo data."""
     return f'''# gradients project file (TOML). Every key is described in docs/project-file.md.
 # Run it with:   gradients check project.toml   then   gradients run project.toml
@@ -115,18 +120,63 @@ def demo_settings(n_resamples: int, seed: int, folder: Path) -> dict[str, Any]:
     return data
 
 
+def demo_seed(rng: RNGLike) -> int:
+    """The integer seed of a demo run: ``rng`` itself when it is an int, else drawn from it.
+
+    The report derives one random stream per analysis from this integer and records it (in
+    ``run.json`` and the methods paragraph), so a run made with a Generator or with None can be
+    repeated by passing the recorded integer.
+    """
+    if isinstance(rng, numbers.Integral) and not isinstance(rng, bool):
+        check_rng(rng)  # refuses a negative seed with the shared message
+        return int(rng)
+    return int(check_rng(rng).integers(0, 2**32))
+
+
 def run_demo(out: str | Path, *, force: bool = False, n_resamples: int = DEMO_PERMUTATIONS,
-             seed: int = 1, overrides: dict[str, Any] | None = None) -> Path:
+             rng: RNGLike = DEMO_SEED, overrides: dict[str, Any] | None = None,
+             seed: int | None = None) -> Path:
     """Run the whole job on the bundled Corvanne Basin data and write the report to ``out``.
 
-    ``overrides`` maps ``"section.key"`` settings to values that replace the demo's (for
-    example ``{"analyses.starts": 5}`` for a quicker run).
+    Parameters
+    ----------
+    out : str or Path
+        The report folder to write (it must not exist unless ``force``).
+    force : bool, default False
+        Replace an existing report folder, once the new one is complete.
+    n_resamples : int, default 999
+        Permutations per test.
+    rng : int, numpy.random.Generator or None, default 1
+        Randomness of the permutations (the demo data themselves are the bundled files). An int
+        is the seed of the run: the same int gives byte-identical tables. A Generator gives an
+        integer seed drawn from it; when `rng` is None, a new `numpy.random.Generator` is
+        created using entropy from the operating system and the seed is drawn from it. Either
+        way the seed used is recorded in ``run.json`` and the methods paragraph.
+    overrides : dict, optional
+        ``"section.key"`` settings that replace the demo's (for example
+        ``{"analyses.starts": 5}`` for a quicker run).
+    seed : int, optional
+        Deprecated: the old name of an integer `rng`, accepted for one release with a
+        ``DeprecationWarning``.
+
+    Returns
+    -------
+    Path
+        The report folder.
     """
     from ..data import demo_survey, simulate_survey
     from ..data._demo import DEFAULT_SEED, DEMO_DIR
 
+    if seed is not None:
+        if not (isinstance(rng, numbers.Integral) and int(rng) == DEMO_SEED):
+            raise InputError("Pass either `rng` or the deprecated `seed` to run_demo, not both.")
+        warnings.warn("run_demo(seed=) is deprecated and will be removed in the next release; "
+                      "pass rng= instead (an int seed, a numpy.random.Generator or None).",
+                      DeprecationWarning, stacklevel=2)
+        rng = seed
+    run_seed = demo_seed(rng)
     OutputFolder(out, force=force)  # refuse early
-    project = project_from_dict(demo_settings(n_resamples, seed, Path(out)))
+    project = project_from_dict(demo_settings(n_resamples, run_seed, Path(out)))
     survey = demo_survey(censored=project["inputs.below_detection"])
     truth = simulate_survey(seed=DEFAULT_SEED)
     inputs = {name.split(".")[0]: DEMO_DIR / name
