@@ -95,7 +95,7 @@ def _cmd_demo(args: argparse.Namespace) -> int:
         raise InputError(f"--seed must be zero or a positive whole number; got {args.seed}.")
     start = time.perf_counter()
     with _progress():
-        folder = run_demo(args.out, force=args.force, n_resamples=n, seed=args.seed)
+        folder = run_demo(args.out, force=args.force, n_resamples=n, rng=args.seed)
     print(f"Demo report written to {folder} in {time.perf_counter() - start:.0f} s.")
     print(f"Open {folder / 'report.html'} in a web browser.")
     return EXIT_OK

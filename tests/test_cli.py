@@ -118,7 +118,7 @@ def test_demo_end_to_end_is_quiet_off_a_terminal(tmp_path: Path,
     monkeypatch.setattr(gradients.report, "run_demo", fake)
     assert main(["demo", "--out", str(tmp_path / "d"), "--permutations", "9", "--seed",
                  "4"]) == 0
-    assert calls["n_resamples"] == 9 and calls["seed"] == 4 and calls["force"] is False
+    assert calls["n_resamples"] == 9 and calls["rng"] == 4 and calls["force"] is False
     # a reporter is installed, and it stays silent because stderr is not a terminal
     assert calls["reporter"] is not None and calls["reporter"].enabled is False
     captured = capsys.readouterr()

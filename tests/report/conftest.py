@@ -17,10 +17,10 @@ QUICK_PERMUTATIONS = 99
 @pytest.fixture(scope="session")
 def quick() -> dict[str, object]:
     """Arguments of :func:`run_demo` for a quick run."""
-    return {"n_resamples": QUICK_PERMUTATIONS, "seed": 7, "overrides": dict(QUICK)}
+    return {"n_resamples": QUICK_PERMUTATIONS, "rng": 7, "overrides": dict(QUICK)}
 
 
 @pytest.fixture(scope="session")
 def demo_report(tmp_path_factory: pytest.TempPathFactory) -> Path:
     out = tmp_path_factory.mktemp("demo") / "report"
-    return run_demo(out, n_resamples=QUICK_PERMUTATIONS, seed=7, overrides=QUICK)
+    return run_demo(out, n_resamples=QUICK_PERMUTATIONS, rng=7, overrides=QUICK)

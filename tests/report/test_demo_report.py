@@ -16,6 +16,7 @@ EXPECTED_TABLES = {
     "site_scores", "taxon_scores", "nmds_starts", "mantel", "partial_mantel",
     "matrix_regression", "matrix_regression_fit", "correlogram", "distance_decay",
     "distance_decay_curve", "hypothesis_verdicts", "predictor_correlations", "planted_truth",
+    "mantel_spatial_check", "partial_mantel_spatial_check",
 }
 EXPECTED_FIGURES = {"ordination_biplot", "shepard", "correlogram", "distance_decay",
                     "hypotheses"}
@@ -107,3 +108,36 @@ def test_same_seed_gives_byte_identical_tables(demo_report: Path, tmp_path: Path
 def test_existing_folder_needs_force(demo_report: Path, tmp_path: Path) -> None:
     with pytest.raises(InputError, match="already exists"):
         run_demo(demo_report)
+
+
+def test_seed_is_deprecated_for_rng_with_the_same_numbers(demo_report: Path, tmp_path: Path,
+                                                          quick: dict) -> None:
+    # run_demo(seed=) is the old name of an integer rng (SPEC 7: rng takes an int, a
+    # Generator or None): same int, byte-identical tables, and a DeprecationWarning.
+    args = {k: v for k, v in quick.items() if k != "rng"}
+    with pytest.warns(DeprecationWarning, match=r"run_demo\(seed=\) is deprecated"):
+        old = run_demo(tmp_path / "old", seed=quick["rng"], **args)
+    for p in sorted((demo_report / "tables").glob("*.csv")):
+        assert p.read_bytes() == (old / "tables" / p.name).read_bytes(), p.name
+    with pytest.raises(InputError, match="either `rng` or the deprecated `seed`"):
+        run_demo(tmp_path / "both", rng=3, seed=4)
+
+
+def test_rng_generator_or_none_records_the_seed_it_drew(tmp_path: Path) -> None:
+    import numpy as np
+
+    from gradients.report._demo import demo_seed
+
+    assert demo_seed(7) == 7 and demo_seed(np.int64(7)) == 7
+    # a Generator gives the integer drawn from it, as numpy draws it
+    assert demo_seed(np.random.default_rng(3)) == int(
+        np.random.default_rng(3).integers(0, 2**32))
+    assert 0 <= demo_seed(None) < 2**32
+    for bad in (-1, True, "7"):
+        with pytest.raises(InputError, match="`rng` must be"):
+            demo_seed(bad)
+    report = run_demo(tmp_path / "g", rng=np.random.default_rng(3), n_resamples=9,
+                      overrides={"analyses.starts": 2, "analyses.surfaces": False})
+    info = json.loads((report / "run.json").read_text(encoding="utf-8"))
+    assert info["seed"] == demo_seed(np.random.default_rng(3))
+    assert f"random seed {info['seed']}" in (report / "methods.md").read_text(encoding="utf-8")

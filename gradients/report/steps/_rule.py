@@ -1,0 +1,135 @@
+"""The verdict rule: from what the matrix tests found for one hypothesis to one verdict.
+
+A pure function of numbers, so that the rule can be read and tested on its own. The verdict
+step (:mod:`.verdicts`) gathers the numbers and states this rule in the report; the user guide
+states it too. Keep the three in step.
+
+The rule
+--------
+Two tests speak for a hypothesis: the partial Mantel test (the simple Mantel test when no
+partial test was run) and its coefficient in the multiple regression on distance matrices. A
+test *is significant* when its effect is positive and its p-value is at most ``level``:
+
+- the Mantel-type test by its p-value Holm-adjusted across hypotheses; and where the spatial
+  check found both matrices (hypothesis distance and community dissimilarity) spatially
+  structured, also by its spatially constrained p-value. Ordinary Mantel-type p-values are then
+  too small (Guillot & Rousset 2013); the constrained p-value is used as it is, not adjusted
+  across hypotheses: it is a guard that each hypothesis must pass on its own;
+- the regression coefficient by its permutation p-value (there is no spatially constrained
+  version of it).
+
+A significant effect *is negligible* when it is below :data:`NEGLIGIBLE_EFFECT` (0.1): Cohen's
+(1988) threshold for a small correlation, applied here to the Mantel r and to the standardised
+regression coefficient. That use of the threshold is this report's own rule.
+
+Verdicts, the first that applies:
+
+1. **associated, but not separable from spatial structure**: the Mantel-type test is
+   significant by its Holm-adjusted p-value, both matrices are spatially structured, and the
+   spatially constrained p-value is above ``level``. Whatever the regression says: its p-value
+   has no spatial guard.
+2. **supported**: every test that was run is significant and not negligible.
+3. **partly supported**: at least one is.
+4. **significant but negligible**: some test is significant, but each significant effect is
+   below the threshold.
+5. **not supported**: no test is significant (or none was run).
+
+References
+----------
+Cohen, J. (1988). Statistical power analysis for the behavioral sciences, 2nd ed. Erlbaum.
+Guillot, G. & Rousset, F. (2013). Dismantling the Mantel tests. Methods in Ecology and
+Evolution 4: 336-344.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+__all__ = [
+    "NEGLIGIBLE",
+    "NEGLIGIBLE_EFFECT",
+    "NOT_SEPARABLE",
+    "NOT_SUPPORTED",
+    "PARTLY",
+    "SUPPORTED",
+    "VERDICTS",
+    "Evidence",
+    "decide_verdict",
+]
+
+SUPPORTED = "supported"
+PARTLY = "partly supported"
+NOT_SEPARABLE = "associated, but not separable from spatial structure"
+NEGLIGIBLE = "significant but negligible"
+NOT_SUPPORTED = "not supported"
+#: Every verdict, strongest evidence first.
+VERDICTS = (SUPPORTED, PARTLY, NOT_SEPARABLE, NEGLIGIBLE, NOT_SUPPORTED)
+
+#: Effects (Mantel r, standardised regression coefficient) below this are negligible: Cohen's
+#: (1988) small correlation, applied to these statistics as this report's own rule.
+NEGLIGIBLE_EFFECT = 0.1
+
+
+def _number(value: float | None) -> float:
+    return math.nan if value is None else float(value)
+
+
+@dataclass(frozen=True)
+class Evidence:
+    """What the tests found for one hypothesis; None (or NaN) where a number is missing.
+
+    Attributes
+    ----------
+    mantel_r : float or None
+        Partial Mantel r (simple Mantel r when no partial test was run).
+    mantel_pvalue : float or None
+        Its permutation p-value, Holm-adjusted across hypotheses.
+    mantel_pvalue_spatial : float or None
+        Its p-value against the spatially constrained null (not adjusted).
+    spatially_structured : bool
+        The spatial check found both matrices spatially structured.
+    regression_coefficient, regression_pvalue : float or None
+        Standardised coefficient of the hypothesis in the regression on distance matrices,
+        and its permutation p-value.
+    """
+
+    mantel_r: float | None = None
+    mantel_pvalue: float | None = None
+    mantel_pvalue_spatial: float | None = None
+    spatially_structured: bool = False
+    regression_coefficient: float | None = None
+    regression_pvalue: float | None = None
+
+
+def decide_verdict(evidence: Evidence, *, level: float = 0.05,
+                   negligible: float = NEGLIGIBLE_EFFECT) -> str:
+    """The verdict for one hypothesis (one of :data:`VERDICTS`); the rule is in the module notes.
+
+    Parameters
+    ----------
+    evidence : Evidence
+    level : float, default 0.05
+        Significance level (the project's ``output.level``).
+    negligible : float, default NEGLIGIBLE_EFFECT
+        Significant effects below this are negligible.
+    """
+    r, p, p_spatial = (_number(evidence.mantel_r), _number(evidence.mantel_pvalue),
+                       _number(evidence.mantel_pvalue_spatial))
+    b, p_b = _number(evidence.regression_coefficient), _number(evidence.regression_pvalue)
+    checks: list[tuple[bool, bool]] = []  # (significant, not negligible) per test run
+    if not (math.isnan(r) or math.isnan(p)):
+        significant = r > 0 and p <= level
+        if significant and evidence.spatially_structured and p_spatial > level:
+            return NOT_SEPARABLE  # (a missing constrained p-value, NaN, is never > level)
+        checks.append((significant, r >= negligible))
+    if not (math.isnan(b) or math.isnan(p_b)):
+        checks.append((b > 0 and p_b <= level, b >= negligible))
+    passed = [significant and large for significant, large in checks]
+    if passed and all(passed):
+        return SUPPORTED
+    if any(passed):
+        return PARTLY
+    if any(significant for significant, _ in checks):
+        return NEGLIGIBLE
+    return NOT_SUPPORTED
