@@ -88,7 +88,7 @@ def test_a_data_reason_skips_the_step_and_is_listed(tmp_path: Path) -> None:
     # decay step raises Skip with that reason; the report, run.json and the HTML list it.
     from gradients.report import write_report
 
-    truth = simulate_survey(n_sites=18, n_taxa=10, seed=11)
+    truth = simulate_survey(n_sites=18, n_taxa=10, rng=11)
     survey = Survey(truth.community, truth.environment.set_index("site"), truth.locations,
                     censored="half-limit")
     outcome = analyse(survey, settings={"permutations.count": 9, "analyses.starts": 2,

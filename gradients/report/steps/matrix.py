@@ -287,7 +287,7 @@ def distance_decay_step(ctx: Context) -> None:
     if d.metric not in BOUNDED:
         raise Skip(f"{d.metric} dissimilarities are not bounded by 1, so 1 - d is not a "
                    "similarity; choose a bounded dissimilarity such as bray-curtis")
-    res = distance_decay(d, geo, rng=ctx.rng("distance_decay"), n_boot=ctx.n_resamples)
+    res = distance_decay(d, geo, rng=ctx.rng("distance_decay"), n_resamples=ctx.n_resamples)
     ctx.results["distance_decay"] = res
     sec = Section("distance_decay", "Distance decay of community similarity")
     halving = (f"a halving distance of {res.halving:.1f} km (95 % interval "
