@@ -60,7 +60,7 @@ from matplotlib.patches import FancyArrowPatch, Patch
 from matplotlib.ticker import MaxNLocator
 
 from .._errors import InputError, format_items
-from ._style import (
+from ..plot._style import (
     ACCENT,
     FADED,
     GRID,
