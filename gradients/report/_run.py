@@ -139,7 +139,7 @@ def analyse(survey: Any, *, settings: dict[str, Any] | None = None,
         The planted truth of a simulated survey; adds the section comparing it with what was
         found.
     """
-    from ._steps import order_sections  # importing registers the steps
+    from .steps import STEPS, order_sections
 
     full = defaults()
     full.update(settings or {})
@@ -149,7 +149,7 @@ def analyse(survey: Any, *, settings: dict[str, Any] | None = None,
                   seed=int(full["permutations.seed"]), n_resamples=int(full["permutations.count"]),
                   figures=_figures_module())
     ctx.results["demo"] = demo
-    run_steps(ctx)
+    run_steps(ctx, STEPS)
     decisions = [str(d) for d in getattr(survey, "log", ())]
     strata = full["design.strata"]
     groups: dict[str, dict[str, int]] = {}

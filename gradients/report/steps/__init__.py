@@ -1,0 +1,70 @@
+"""The analysis steps of a run, listed in the order they run, and the order of the sections.
+
+Each step reads its settings, calls the analysis functions of the earlier stages and arranges
+their results into a section (tables, figures, text) plus sentences for the methods paragraph.
+The tests and fits themselves are the analysis functions'; the steps compute only what joins
+them into a report: analysis units of the variables (log10, log-ratios, km), the Holm
+adjustment across hypotheses, correlations among the predictor matrices, and the verdict per
+hypothesis (see :mod:`.verdicts`). One module per stage: :mod:`.community` (community,
+environment, geography), :mod:`.ordination` (ordination and fitting), :mod:`.matrix` (the
+Mantel family, regression, correlogram, distance decay) and :mod:`.verdicts`; the demo's
+planted-truth step lives with the demo (``gradients.report._demo``).
+
+:data:`STEPS` is the one list :func:`~gradients.report._pipeline.run_steps` runs: each step
+needs what the steps before it left in the context (the community and environmental distances
+first, then the ordination, the fits and the matrix tests, and the verdicts built from them).
+The report shows the sections in :data:`SECTION_ORDER`, which differs from the run order.
+"""
+
+from __future__ import annotations
+
+from .._demo import planted_truth_step
+from .._model import Section
+from .._pipeline import Step
+from .community import community_step, environment_step, geography_step
+from .matrix import (
+    correlogram_step,
+    distance_decay_step,
+    mantel_step,
+    partial_mantel_step,
+    regression_step,
+)
+from .ordination import (
+    biplot_step,
+    factors_step,
+    ordination_step,
+    surfaces_step,
+    vectors_step,
+)
+from .verdicts import verdicts_step
+
+__all__ = ["SECTION_ORDER", "STEPS", "order_sections"]
+
+#: Every step of a run, in the order it runs.
+STEPS: tuple[Step, ...] = (
+    Step("community", community_step, required=True),
+    Step("environment", environment_step, required=True),
+    Step("geography", geography_step, required=True),
+    Step("ordination", ordination_step, required=True),
+    Step("vectors", vectors_step, "analyses.vectors"),
+    Step("factors", factors_step, "analyses.factors"),
+    Step("biplot", biplot_step),
+    Step("mantel", mantel_step, "analyses.mantel"),
+    Step("partial_mantel", partial_mantel_step, "analyses.partial_mantel"),
+    Step("regression", regression_step, "analyses.regression"),
+    Step("correlogram", correlogram_step, "analyses.correlogram"),
+    Step("distance_decay", distance_decay_step, "analyses.distance_decay"),
+    Step("verdicts", verdicts_step, "analyses.verdicts"),
+    Step("planted_truth", planted_truth_step),
+    Step("surfaces", surfaces_step, "analyses.surfaces"),
+)
+
+#: Order of the sections in the report (steps run in dependency order, which differs).
+SECTION_ORDER = ("verdicts", "planted_truth", "ordination", "vectors", "surfaces", "factors",
+                 "mantel", "partial_mantel", "regression", "correlogram", "distance_decay")
+
+
+def order_sections(sections: list[Section]) -> list[Section]:
+    """``sections`` sorted into :data:`SECTION_ORDER` (unknown keys last, in their order)."""
+    rank = {k: i for i, k in enumerate(SECTION_ORDER)}
+    return sorted(sections, key=lambda s: rank.get(s.key, len(rank)))

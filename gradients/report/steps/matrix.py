@@ -1,0 +1,258 @@
+"""Matrix steps: Mantel and partial Mantel tests, regression on distance matrices, the Mantel
+correlogram and the distance decay of similarity.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from .._model import Section
+from .._pipeline import Context, Skip
+from ._common import _add_figure, _fmt_p, _predictors, _strata
+
+__all__ = ["correlogram_step", "distance_decay_step", "mantel_step", "partial_mantel_step",
+           "regression_step"]
+
+
+def _spatial_kwargs(ctx: Context) -> dict[str, object]:
+    geo = ctx.results.get("geography")
+    if geo is None or ctx.settings["design.strata"]:
+        return {}
+    return {"spatial_null": geo, "n_surrogates": ctx.n_resamples}
+
+
+def _spatial_reason(ctx: Context) -> str:
+    """Why the report ran no spatially constrained test, in project-file words."""
+    if ctx.results.get("geography") is not None and ctx.settings["design.strata"]:
+        return ("Spatial autocorrelation was not checked: with `design.strata` set, the "
+                "spatially constrained null (Moran spectral randomisation), which does not keep "
+                "strata, is not computed. When both matrices are spatially structured, Mantel "
+                "p-values are too small (Guillot & Rousset 2013); read them with care.")
+    return ("Spatial autocorrelation was not checked because no usable site locations were "
+            "given (`[inputs] locations`). When both matrices are spatially structured, Mantel "
+            "p-values are too small (Guillot & Rousset 2013); add locations for a check and a "
+            "spatially constrained p-value.")
+
+
+def _attributed_notes(results: dict[str, Any], ctx: Context | None = None) -> list[str]:
+    """Notes of several results, each said once, prefixed by the names it applies to.
+
+    A note that every result carries is given without a prefix. With ``ctx``, the analyses'
+    advice to pass locations to a Python argument is said in project-file words instead.
+    """
+    owners: dict[str, list[str]] = {}
+    for name, res in results.items():
+        for note in res.notes:
+            if ctx is not None and note.startswith("Spatial autocorrelation was not checked"):
+                note = _spatial_reason(ctx)
+            names = owners.setdefault(note, [])
+            if name not in names:
+                names.append(name)
+    return [note if len(names) == len(results) else f"{', '.join(names)}: {note}"
+            for note, names in owners.items()]
+
+
+def mantel_step(ctx: Context) -> None:
+    from ...matrix import mantel
+
+    community = ctx.results["community"]
+    preds = _predictors(ctx)
+    preds.pop("covariables", None)
+    if not preds:
+        return
+    rows = []
+    results = {}
+    for name, d in preds.items():
+        spatial = _spatial_kwargs(ctx) if name != "geography" else {}
+        res = mantel(d, community, n_resamples=ctx.n_resamples, rng=ctx.rng(f"mantel:{name}"),
+                     strata=_strata(ctx), **spatial)
+        results[name] = res
+        rows.append({"predictor": name, "statistic": res.statistic, "pvalue": res.pvalue,
+                     "pvalue_spatial": res.pvalue_spatial, "method": res.method,
+                     "n_sites": res.n_sites, "n_pairs": res.n_pairs,
+                     "n_resamples": res.n_resamples, "exact": res.exact})
+    ctx.results["mantel"] = results
+    table = pd.DataFrame(rows).set_index("predictor")
+    if table["pvalue_spatial"].isna().all():
+        table = table.drop(columns="pvalue_spatial")
+    sec = Section("mantel", "Mantel tests: community turnover against each predictor")
+    sec.paragraphs.append(
+        "Correlation (Mantel r) between community dissimilarity and the environmental distance "
+        "of each hypothesis, and geographic distance, each on its own. A positive r means "
+        "sites that differ more in the predictor differ more in their communities.")
+    if "pvalue_spatial" in table.columns:
+        sec.paragraphs.append(
+            "pvalue_spatial is the p-value against a spatially constrained null (Moran "
+            "spectral randomisation of the predictor, Wagner & Dray 2015), which keeps the "
+            "spatial structure of the data; it guards against the too-small p-values that "
+            "spatial autocorrelation gives ordinary Mantel tests.")
+    sec.tables["mantel"] = table
+    sec.shown.append("mantel")
+    sec.notes.extend(_attributed_notes(results, ctx))
+    ctx.sections.append(sec)
+    ctx.methods.append(
+        "Mantel tests (Mantel 1967; Pearson r, sites permuted) of community dissimilarity "
+        "against each predictor gave " + "; ".join(
+            f"{n} r = {r.statistic:.3f} ({_fmt_p(r.pvalue)}"
+            + (f", spatially constrained {_fmt_p(r.pvalue_spatial)}"
+               if r.pvalue_spatial is not None else "") + ")"
+            for n, r in results.items()) + ".")
+
+
+def partial_mantel_step(ctx: Context) -> None:
+    from ...matrix import partial_mantel
+
+    community = ctx.results["community"]
+    hyp = ctx.results.get("hypothesis_distances", {})
+    preds = _predictors(ctx)
+    if not hyp or len(preds) < 2:
+        return
+    rows = []
+    results = {}
+    for name, d in hyp.items():
+        controls = {k: v for k, v in preds.items() if k != name}
+        res = partial_mantel(d, community, controls, permute="residuals",
+                             n_resamples=ctx.n_resamples, rng=ctx.rng(f"partial:{name}"),
+                             strata=_strata(ctx), **_spatial_kwargs(ctx))
+        results[name] = res
+        rows.append({"hypothesis": name, "controls": ", ".join(res.controls),
+                     "statistic": res.statistic, "r_simple": res.r_xy, "pvalue": res.pvalue,
+                     "pvalue_spatial": res.pvalue_spatial, "permute": res.permute,
+                     "n_resamples": res.n_resamples})
+    ctx.results["partial_mantel"] = results
+    table = pd.DataFrame(rows).set_index("hypothesis")
+    if table["pvalue_spatial"].isna().all():
+        table = table.drop(columns="pvalue_spatial")
+    sec = Section("partial_mantel", "Partial Mantel tests: each hypothesis given the others")
+    sec.paragraphs.append(
+        "Correlation between community dissimilarity and each hypothesis' environmental "
+        "distance after the other hypotheses, the covariables and geographic distance are "
+        "regressed out of both (r_simple is the correlation before). The residuals of the "
+        "hypothesis distance on the controls were permuted (Freedman & Lane 1983), the method "
+        "Legendre (2000) recommends for partial Mantel tests.")
+    sec.tables["partial_mantel"] = table
+    sec.shown.append("partial_mantel")
+    sec.notes.extend(_attributed_notes(results, ctx))
+    ctx.sections.append(sec)
+    ctx.methods.append(
+        "Partial Mantel tests (Smouse, Long & Sokal 1986) of each hypothesis controlling for "
+        "the others" + (", the covariables" if "covariables" in preds else "")
+        + (" and geographic distance" if "geography" in preds else "")
+        + ", permuting residuals of the reduced model (Legendre 2000), gave " + "; ".join(
+            f"{n} r = {r.statistic:.3f} ({_fmt_p(r.pvalue)})" for n, r in results.items())
+        + ".")
+
+
+def regression_step(ctx: Context) -> None:
+    from ...matrix import matrix_regression
+
+    preds = _predictors(ctx)
+    if not preds:
+        return
+    res = matrix_regression(ctx.results["community"], preds, n_resamples=ctx.n_resamples,
+                            rng=ctx.rng("regression"), strata=_strata(ctx))
+    ctx.results["regression"] = res
+    table = res.table.copy()
+    table.index.name = "predictor"
+    fit = pd.DataFrame({"r2": [res.r2], "pvalue": [res.pvalue], "f_statistic": [res.f_statistic],
+                        "intercept": [res.intercept], "n_sites": [res.n_sites],
+                        "n_pairs": [res.n_pairs], "n_resamples": [res.n_resamples]},
+                       index=pd.Index(["model"], name="fit"))
+    sec = Section("regression", "Multiple regression on distance matrices")
+    sec.paragraphs.append(
+        f"Community dissimilarity regressed on every predictor distance together (Lichstein "
+        f"2007): R2 = {res.r2:.3f} ({_fmt_p(res.pvalue)}). std_coefficient is the change in "
+        "community dissimilarity, in standard deviations, per standard deviation of the "
+        "predictor distance with the others held fixed; each is tested by permuting the "
+        "community matrix. A variance inflation factor (vif) above about 5 means the "
+        "predictor is hard to separate from the others.")
+    sec.tables["matrix_regression"] = table
+    sec.tables["matrix_regression_fit"] = fit
+    sec.shown.append("matrix_regression")
+    sec.notes.extend(res.notes)
+    ctx.sections.append(sec)
+    ctx.methods.append(
+        f"A multiple regression on distance matrices (Lichstein 2007) of community "
+        f"dissimilarity on {', '.join(preds)} had R2 = {res.r2:.3f} ({_fmt_p(res.pvalue)}); "
+        + "; ".join(f"{n} standardised coefficient {row.std_coefficient:.3f} "
+                    f"({_fmt_p(row.pvalue)})" for n, row in res.table.iterrows()) + ".")
+
+
+def correlogram_step(ctx: Context) -> None:
+    from ...matrix import mantel_correlogram
+
+    geo = ctx.results.get("geography")
+    if geo is None:
+        raise Skip("no site locations were given")
+    res = mantel_correlogram(ctx.results["community"], geo, n_resamples=ctx.n_resamples,
+                             rng=ctx.rng("correlogram"), strata=_strata(ctx))
+    ctx.results["correlogram"] = res
+    table = res.table.copy()
+    table.index.name = "class"
+    sec = Section("correlogram", "Mantel correlogram: community similarity across distance")
+    sec.paragraphs.append(
+        "Mantel correlation between community dissimilarity and membership of each class of "
+        "geographic distance (Oden & Sokal 1986); positive values mean sites in that class are "
+        "more alike than average. p-values are corrected progressively (Holm) from the "
+        "shortest class; classes with few pairs are shown but not tested.")
+    sec.tables["correlogram"] = table
+    sec.shown.append("correlogram")
+    sec.notes.extend(res.notes)
+    ctx.sections.append(sec)
+    fig_table = pd.DataFrame({
+        "midpoint": table["midpoint"], "statistic": table["statistic"],
+        "pvalue": table["pvalue"], "pvalue_adjusted": table["pvalue_adjusted"],
+        "n_pairs": table["n_pairs"], "flagged": ~table["tested"].astype(bool)})
+    _add_figure(ctx, sec, "correlogram", "Mantel correlogram; filled marks are significant after "
+                "the progressive Holm correction.", "correlogram", fig_table,
+                alpha=ctx.settings["output.level"], distance_unit="km")
+    tested = table[table["tested"].astype(bool)]
+    sig = tested[tested["pvalue_adjusted"] <= ctx.settings["output.level"]]
+    ctx.methods.append(
+        f"A Mantel correlogram over {len(table)} distance classes (Sturges' rule) found "
+        f"{len(sig)} of {len(tested)} tested classes significant after progressive Holm "
+        "correction.")
+
+
+BOUNDED = ("bray-curtis", "jaccard", "sorensen", "ruzicka", "kulczynski", "morisita-horn")
+
+
+def distance_decay_step(ctx: Context) -> None:
+    from ...matrix import distance_decay
+
+    geo = ctx.results.get("geography")
+    if geo is None:
+        raise Skip("no site locations were given")
+    d = ctx.results["community"]
+    if d.metric not in BOUNDED:
+        raise Skip(f"{d.metric} dissimilarities are not bounded by 1, so 1 - d is not a "
+                   "similarity; choose a bounded dissimilarity such as bray-curtis")
+    res = distance_decay(d, geo, rng=ctx.rng("distance_decay"), n_boot=ctx.n_resamples)
+    ctx.results["distance_decay"] = res
+    sec = Section("distance_decay", "Distance decay of community similarity")
+    halving = (f"a halving distance of {res.halving:.1f} km (95 % interval "
+               f"{res.halving_interval[0]:.1f} to {res.halving_interval[1]:.1f} km, bootstrap "
+               "of sites)" if np.isfinite(res.halving) else "no decline (slope not negative)")
+    sec.paragraphs.append(
+        f"Similarity (1 - dissimilarity) against geographic distance, {res.model} model "
+        f"ln S = a + b g (Nekola & White 1999): slope {res.slope:.4f} per km, {halving}. "
+        "Intervals come from resampling sites, because pairs of sites are not independent.")
+    table = res.table.copy()
+    table.index.name = "parameter"
+    sec.tables["distance_decay"] = table
+    sec.tables["distance_decay_curve"] = res.curve
+    sec.shown.append("distance_decay")
+    sec.notes.extend(res.notes)
+    ctx.sections.append(sec)
+    pairs = res.pairs[res.pairs["used"].astype(bool)]
+    _add_figure(ctx, sec, "distance_decay", "Community similarity of each pair of sites against "
+                "their distance, with the fitted decay curve.", "distance_decay_plot",
+                pairs, res.curve,
+                halving=float(res.halving) if np.isfinite(res.halving) else None,
+                distance_unit="km")
+    ctx.methods.append(
+        f"Distance decay of similarity was fitted with the {res.model} model (Nekola & White "
+        f"1999): slope {res.slope:.4f} per km, {halving}.")
