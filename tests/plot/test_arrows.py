@@ -16,6 +16,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
+import gradients
 from gradients import plot
 
 
@@ -70,3 +71,32 @@ def test_the_arrows_layer_alone_draws_the_same_tips(demo):
     ax2 = plot.arrows(demo.vectors, scale=2.0)
     unit = plot.arrows(demo.vectors, scale=1.0)
     assert np.allclose(_drawn_tips(ax2), 2.0 * _drawn_tips(unit))
+
+
+@pytest.fixture(scope="module")
+def demo_outcome(tmp_path_factory):
+    """What the demo report computes (seed 1, as ``gradients demo``), before it is written."""
+    from gradients.report import analyse, project_from_dict
+    from gradients.report._demo import demo_settings
+
+    project = project_from_dict(demo_settings(99, 1, tmp_path_factory.mktemp("demo")))
+    survey = gradients.demo_survey(censored=project["inputs.below_detection"])
+    return analyse(survey, settings=project.settings, hypotheses=project.hypotheses)
+
+
+def test_demo_biplot_draws_the_plot_columns_of_vector_fits(demo_outcome):
+    # the biplot of the report and its table vector_fits.csv give the same arrows: a user who
+    # redraws the biplot from the table's plot_* columns gets the figure of the report
+    table = demo_outcome.tables["vector_fits"]
+    (section,) = [s for s in demo_outcome.sections if "ordination_biplot" in s.figures]
+    ax = section.figures["ordination_biplot"].axes[0]
+    drawn = _drawn_tips(ax)
+    assert np.array_equal(drawn, table[["plot_axis1", "plot_axis2"]].to_numpy())
+    multiplier = float(table["plot_multiplier"].iloc[0])
+    assert f"arrows ×{multiplier:.3g}" in ax.get_title(loc="right")
+    # the demo's table multiplier as the issue reports it (0.821; the figure said x0.926
+    # before the figure and the table shared one rule)
+    assert f"{multiplier:.3f}" == "0.821"
+    # and the plot_* columns are the tip_* columns times that one multiplier
+    tips = table[["tip_axis1", "tip_axis2"]].to_numpy()
+    assert np.allclose(drawn, tips * multiplier, rtol=1e-12, atol=0)

@@ -35,6 +35,8 @@ def _predictor_correlations(preds: dict[str, object]) -> pd.DataFrame:
 
 
 def verdicts_step(ctx: Context) -> None:
+    from ...plot import hypotheses
+
     hyp = ctx.results.get("hypothesis_distances", {})
     if not hyp:
         return
@@ -170,7 +172,7 @@ def verdicts_step(ctx: Context) -> None:
                               "pvalue": row["regression_pvalue"]})
     if plot_rows:
         _add_figure(ctx, sec, "hypotheses", "Effect size of each hypothesis; filled marks are "
-                    f"significant at {level} (raw p-values).", "hypothesis_plot",
+                    f"significant at {level} (raw p-values).", hypotheses,
                     pd.DataFrame(plot_rows), alpha=level, xlabel="Effect size")
     ctx.methods.append(
         "Verdicts per hypothesis: " + " ".join(summary)
