@@ -161,3 +161,15 @@ def test_every_public_name_is_documented():
     undocumented = [n for n in plot.__all__
                     if not re.search(rf"`(plot\.)?{n}(\(|`)", docs)]
     assert not undocumented
+
+
+def test_the_first_example_of_the_docs_page_runs_as_printed(tmp_path, monkeypatch):
+    text = (ROOT / "docs" / "plot.md").read_text(encoding="utf-8")
+    code = re.search(r"```python\n(.*?)```", text, re.S).group(1)
+    monkeypatch.chdir(tmp_path)
+    namespace: dict[str, object] = {}
+    exec(compile(code, "docs/plot.md", "exec"), namespace)
+    ax = namespace["ax"]
+    assert isinstance(ax, Axes) and (tmp_path / "biplot.png").stat().st_size > 1000
+    assert len([p for p in ax.patches if p.get_label().startswith("_gr:arrow")]) == len(
+        namespace["vectors"].table)
