@@ -70,10 +70,15 @@ _EXPORTS: dict[str, str] = {
     "run_demo": "report",
 }
 
-__all__ = ["InputError", "__version__", *_EXPORTS]
+#: Subpackages reached as attributes (``gradients.plot.biplot(...)``), loaded on first use.
+_SUBPACKAGES = ("plot",)
+
+__all__ = ["InputError", "__version__", *_EXPORTS, *_SUBPACKAGES]
 
 
 def __getattr__(name: str) -> Any:
+    if name in _SUBPACKAGES:
+        return importlib.import_module(f"gradients.{name}")
     try:
         stage = _EXPORTS[name]
     except KeyError:

@@ -61,17 +61,15 @@ class Context:
     skipped: list[tuple[str, str]] = field(default_factory=list)
     timings: dict[str, float] = field(default_factory=dict)
     site_columns: dict[str, pd.Series] = field(default_factory=dict)
-    figures: Any = None  # the figures module, or None
 
     def rng(self, name: str) -> np.random.Generator:
         return rng_for(self.seed, name)
 
-    def figure(self, function: str, *args: Any, **kwargs: Any) -> Any:
-        """A figure from the figures module, or None when it has no such function."""
-        func = getattr(self.figures, function, None) if self.figures is not None else None
-        if func is None:
-            return None
-        return func(*args, **kwargs)
+    def figure(self, draw: Callable[..., Any], *args: Any, **kwargs: Any) -> Any:
+        """The figure drawn by ``draw(*args, **kwargs)``, a function of :mod:`gradients.plot`
+        (which returns the axes it drew into, or the figure when it draws several panels)."""
+        drawn = draw(*args, **kwargs)
+        return drawn.get_figure(root=True) if hasattr(drawn, "get_figure") else drawn
 
 
 StepFunction = Callable[[Context], None]

@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import hashlib
-import importlib
 import json
 import platform
 import sys
@@ -102,13 +101,6 @@ def _read(read_survey: Any, s: dict[str, Any]) -> Any:
     )
 
 
-def _figures_module() -> Any:
-    try:
-        return importlib.import_module("gradients.report._figures")
-    except ImportError:
-        return None
-
-
 def _jsonable(value: Any) -> Any:
     if isinstance(value, Path):
         return str(value)
@@ -146,8 +138,7 @@ def analyse(survey: Any, *, settings: dict[str, Any] | None = None,
     hypotheses = dict(hypotheses or {})
     start = time.perf_counter()
     ctx = Context(settings=full, hypotheses=hypotheses, survey=survey,
-                  seed=int(full["permutations.seed"]), n_resamples=int(full["permutations.count"]),
-                  figures=_figures_module())
+                  seed=int(full["permutations.seed"]), n_resamples=int(full["permutations.count"]))
     ctx.results["demo"] = demo
     run_steps(ctx, STEPS)
     decisions = [str(d) for d in getattr(survey, "log", ())]
@@ -192,11 +183,6 @@ def analyse(survey: Any, *, settings: dict[str, Any] | None = None,
                    skipped=ctx.skipped, summary=list(ctx.results.get("summary", [])))
 
 
-def _save_figure(fig: Any, stem: Path, figures: Any) -> None:
-    """Write ``stem.png`` and ``stem.svg`` with the figures module's reproducible writer."""
-    figures.save_figure(fig, stem)
-
-
 def _unique(name: str, used: set[str]) -> str:
     base, k = name, 2
     while name.lower() in used:
@@ -212,7 +198,8 @@ def write_report(outcome: Outcome, out: str | Path, *, force: bool = False) -> P
     The folder is written beside ``out`` under a temporary name and renamed into place when
     complete; see :class:`~gradients.report._writers.OutputFolder`.
     """
-    figures_module = _figures_module()
+    from ._figure_files import save_figure  # matplotlib is loaded only to write figures
+
     start = time.perf_counter()
     folder = OutputFolder(out, force=force)
     tables = outcome.tables
@@ -245,7 +232,7 @@ def write_report(outcome: Outcome, out: str | Path, *, force: bool = False) -> P
                 if reporter is not None:
                     reporter("writing figures", len(svg), len(figure_files))
                 base = figure_files[name]
-                _save_figure(fig, folder.path(f"figures/{base}"), figures_module)
+                save_figure(fig, folder.path(f"figures/{base}"))
                 svg[name] = folder.path(f"figures/{base}.svg").read_bytes()
         if reporter is not None:
             reporter("writing figures", len(figure_files), len(figure_files))

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from collections.abc import Callable
+
 import pandas as pd
 
 from ..._errors import InputError
@@ -23,8 +25,8 @@ def _section(ctx: Context, key: str) -> Section | None:
     return None
 
 
-def _add_figure(ctx: Context, section: Section, name: str, caption: str, function: str,
-                *args: object, **kwargs: object) -> None:
+def _add_figure(ctx: Context, section: Section, name: str, caption: str,
+                function: Callable[..., object], *args: object, **kwargs: object) -> None:
     try:
         fig = ctx.figure(function, *args, **kwargs)
     except InputError as exc:

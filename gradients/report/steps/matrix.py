@@ -240,6 +240,7 @@ def regression_step(ctx: Context) -> None:
 
 def correlogram_step(ctx: Context) -> None:
     from ...matrix import mantel_correlogram
+    from ...plot import correlogram
 
     geo = ctx.results.get("geography")
     if geo is None:
@@ -259,12 +260,8 @@ def correlogram_step(ctx: Context) -> None:
     sec.shown.append("correlogram")
     sec.notes.extend(res.notes)
     ctx.sections.append(sec)
-    fig_table = pd.DataFrame({
-        "midpoint": table["midpoint"], "statistic": table["statistic"],
-        "pvalue": table["pvalue"], "pvalue_adjusted": table["pvalue_adjusted"],
-        "n_pairs": table["n_pairs"], "flagged": ~table["tested"].astype(bool)})
     _add_figure(ctx, sec, "correlogram", "Mantel correlogram; filled marks are significant after "
-                "the progressive Holm correction.", "correlogram", fig_table,
+                "the progressive Holm correction.", correlogram, res,
                 alpha=ctx.settings["output.level"], distance_unit="km")
     tested = table[table["tested"].astype(bool)]
     sig = tested[tested["pvalue_adjusted"] <= ctx.settings["output.level"]]
@@ -279,6 +276,7 @@ BOUNDED = ("bray-curtis", "jaccard", "sorensen", "ruzicka", "kulczynski", "moris
 
 def distance_decay_step(ctx: Context) -> None:
     from ...matrix import distance_decay
+    from ...plot import distance_decay as decay_figure
 
     geo = ctx.results.get("geography")
     if geo is None:
@@ -304,11 +302,8 @@ def distance_decay_step(ctx: Context) -> None:
     sec.shown.append("distance_decay")
     sec.notes.extend(res.notes)
     ctx.sections.append(sec)
-    pairs = res.pairs[res.pairs["used"].astype(bool)]
     _add_figure(ctx, sec, "distance_decay", "Community similarity of each pair of sites against "
-                "their distance, with the fitted decay curve.", "distance_decay_plot",
-                pairs, res.curve,
-                halving=float(res.halving) if np.isfinite(res.halving) else None,
+                "their distance, with the fitted decay curve.", decay_figure, res,
                 distance_unit="km")
     ctx.methods.append(
         f"Distance decay of similarity was fitted with the {res.model} model (Nekola & White "

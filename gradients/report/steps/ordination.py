@@ -17,6 +17,7 @@ __all__ = ["biplot_step", "factors_step", "ordination_step", "surfaces_step", "v
 
 def ordination_step(ctx: Context) -> None:
     from ...ordination import nmds, pcoa, taxon_scores
+    from ...plot import shepard
 
     d = ctx.results["community"]
     kind = ctx.settings["analyses.ordination"]
@@ -56,8 +57,7 @@ def ordination_step(ctx: Context) -> None:
     ctx.sections.append(sec)
     if kind == "nmds":
         _add_figure(ctx, sec, "shepard", "Shepard diagram: distances in the ordination against "
-                    "community dissimilarities, with the monotone fit.", "shepard_diagram",
-                    res.shepard, stress=res.stress,
+                    "community dissimilarities, with the monotone fit.", shepard, res,
                     xlabel=f"{METRIC_NAMES.get(ctx.results['community'].metric, 'Community')} "
                     "dissimilarity")
 
@@ -140,6 +140,8 @@ def factors_step(ctx: Context) -> None:
 
 
 def biplot_step(ctx: Context) -> None:
+    from ...plot import biplot
+
     res = ctx.results.get("ordination")
     sec = _section(ctx, "ordination")
     if res is None or sec is None:
@@ -147,20 +149,14 @@ def biplot_step(ctx: Context) -> None:
     kwargs: dict[str, object] = {"alpha": ctx.settings["output.level"]}
     vec = ctx.results.get("vectors")
     if vec is not None:
-        arrows = vec.arrows(1.0)[list(vec.axes)]
-        arrows["pvalue"] = vec.table["pvalue"]
-        kwargs["arrows"] = arrows
+        kwargs["vectors"] = vec  # the arrows of vector_fits.csv (its plot_* columns)
     fac = ctx.results.get("factors")
     if fac is not None:
-        kwargs["centroids"] = fac.centroids
+        kwargs["factors"] = fac
         first = fac.table.index[0]
         kwargs["groups"] = ctx.survey.environment[first].astype(object)
     if "taxon_scores" in sec.tables:
         kwargs["taxa"] = sec.tables["taxon_scores"]
-    if hasattr(res, "stress"):
-        kwargs["stress"] = res.stress
-    else:
-        kwargs["explained"] = tuple(res.proportion_explained.iloc[:2])
     caption = "Sites in the ordination"
     if vec is not None:
         caption += (", with fitted environmental arrows (faded and dashed when p > "
@@ -169,14 +165,14 @@ def biplot_step(ctx: Context) -> None:
         caption += ", class centroids"
     if "taxa" in kwargs:
         caption += " and taxon weighted averages (grey crosses)"
-    _add_figure(ctx, sec, "ordination_biplot", caption + ".", "ordination_biplot",
-                res.scores, **kwargs)
+    _add_figure(ctx, sec, "ordination_biplot", caption + ".", biplot, res, **kwargs)
     # the biplot goes first in the section
     sec.figures = dict(sorted(sec.figures.items(), key=lambda kv: kv[0] != "ordination_biplot"))
 
 
 def surfaces_step(ctx: Context) -> None:
     from ...fitting import fit_surface
+    from ...plot import surface
 
     variables = list(ctx.settings["environment.surfaces"])
     if not variables:
@@ -217,11 +213,9 @@ def surfaces_step(ctx: Context) -> None:
         lines.append(contours)
         ctx.site_columns[f"fitted_{column}"] = fit.fitted
         sec.notes.extend(n for n in fit.notes if n not in sec.notes)
-        drawn = contours.copy()
-        drawn["path"] = drawn.groupby(["level", "line"], sort=False).ngroup()
         _add_figure(ctx, sec, f"surface_{v}", f"Fitted surface of {column} over the "
                     "ordination (contours within the sites' hull), with the sites.",
-                    "surface_contours", scores, fit.grid, variable=column, contours=drawn)
+                    surface, fit, scores)
     ctx.results["surfaces"] = fits
     table = pd.DataFrame(rows).set_index("variable")
     sec.tables["surface_summary"] = table

@@ -73,6 +73,8 @@ def _both_structured(result: Any) -> bool | None:
 
 
 def verdicts_step(ctx: Context) -> None:
+    from ...plot import hypotheses
+
     hyp = ctx.results.get("hypothesis_distances", {})
     if not hyp:
         return
@@ -216,7 +218,7 @@ def verdicts_step(ctx: Context) -> None:
                               "pvalue": row["regression_pvalue"]})
     if plot_rows:
         _add_figure(ctx, sec, "hypotheses", "Effect size of each hypothesis; filled marks are "
-                    f"significant at {level} (raw p-values).", "hypothesis_plot",
+                    f"significant at {level} (raw p-values).", hypotheses,
                     pd.DataFrame(plot_rows), alpha=level, xlabel="Effect size")
     test_name = test_words[0].upper() + test_words[1:]
     ctx.methods.append(

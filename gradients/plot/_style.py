@@ -1,4 +1,4 @@
-"""The house style of the figures in a ``gradients`` report.
+"""The house style of every figure drawn by :mod:`gradients.plot` (and so of the report).
 
 One place decides how every figure looks: palette, fonts, sizes, line widths, grid and title
 placement. The style is a plain dictionary of matplotlib ``rcParams`` (:data:`HOUSE_RC`) applied
@@ -25,10 +25,9 @@ Design choices, made for reading in print and on a laptop screen:
 Notes
 -----
 Matplotlib reads some ``rcParams`` when an artist is created and others when a figure is drawn
-(tick labels are made lazily at draw time, SVG identifiers at save time). The plotting functions
-in :mod:`gradients.report._figures` therefore build each figure inside :func:`house_style` and
-draw it once before returning, and :func:`gradients.report._figures.save_figure` saves inside the
-same context.
+(tick labels are made lazily at draw time, SVG identifiers at save time). The functions of
+:mod:`gradients.plot` therefore build each figure they make inside :func:`house_style` and draw
+it once before returning, and the report saves its figures inside the same context.
 
 References
 ----------

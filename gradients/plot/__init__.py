@@ -1,0 +1,46 @@
+"""Plot stage: the figures of a ``gradients`` report, drawn from result objects.
+
+Every function takes the result objects of the analyses (an ordination result, a vector,
+factor or surface fit, a correlogram, a distance decay) and an optional ``ax=``: given axes are
+drawn into, otherwise a new figure is made in the house style. Each returns the
+:class:`~matplotlib.axes.Axes` it drew into (the :class:`~matplotlib.figure.Figure` where it
+draws several panels) and never writes a file: save with ``ax.figure.savefig(...)``. The report
+draws its figures with these same functions.
+
+- Ordination: :func:`biplot`, built from the layers :func:`sites`, :func:`taxa`,
+  :func:`arrows` and :func:`centroids` (and :func:`legend` for the legend of the layers);
+  :func:`surface` (a fitted surface as contours); :func:`shepard` (the Shepard diagram of an
+  NMDS).
+- Matrix tests: :func:`correlogram` (Mantel correlogram), :func:`distance_decay`.
+- Hypotheses: :func:`hypotheses`; drawn from tidy tables ahead of their stages:
+  :func:`ranking`, :func:`turnover_curves`, :func:`partition`.
+- :func:`house_style`: the house style as a ``with`` block, to restyle or save a figure.
+
+No pyplot is used: figures are built on :class:`matplotlib.figure.Figure` directly, so nothing
+opens a window and no global matplotlib state changes.
+"""
+
+from ._biplot import biplot
+from ._hypotheses import hypotheses, partition, ranking, turnover_curves
+from ._matrix import correlogram, distance_decay
+from ._ordination import arrows, centroids, legend, sites, taxa
+from ._style import house_style
+from ._surfaces import shepard, surface
+
+__all__ = [
+    "arrows",
+    "biplot",
+    "centroids",
+    "correlogram",
+    "distance_decay",
+    "house_style",
+    "hypotheses",
+    "legend",
+    "partition",
+    "ranking",
+    "shepard",
+    "sites",
+    "surface",
+    "taxa",
+    "turnover_curves",
+]

@@ -1,0 +1,45 @@
+"""Shared fixtures: real result objects from the bundled demo survey, computed once.
+
+Permutation counts are small: the figures only read the results, whose numbers are checked by
+the analysis stages' own tests.
+"""
+
+from __future__ import annotations
+
+from types import SimpleNamespace
+
+import pytest
+
+import gradients
+from gradients.distance import DistanceMatrix
+
+
+@pytest.fixture(scope="session")
+def demo() -> SimpleNamespace:
+    survey = gradients.demo_survey()
+    env = survey.environment
+    numeric = env.drop(columns="habitat")
+    d = gradients.dissimilarity(survey.community, "bray-curtis")
+    metres = gradients.geographic_distance(survey.locations)
+    geo = DistanceMatrix(metres.condensed / 1000.0, metres.labels, metric=metres.metric,
+                         validate=False)
+    pcoa = gradients.pcoa(d)
+    nmds = gradients.nmds(d, starts=3, rng=1)
+    return SimpleNamespace(
+        survey=survey,
+        d=d,
+        geo=geo,
+        pcoa=pcoa,
+        nmds=nmds,
+        vectors=gradients.fit_vectors(pcoa, numeric, n_resamples=99, rng=1),
+        factors=gradients.fit_factors(pcoa, env[["habitat"]], n_resamples=99, rng=1),
+        surface=gradients.fit_surface(pcoa, env["Cu"], n_resamples=0),
+        taxa=pcoa.taxon_scores(survey.community),
+        correlogram=gradients.mantel_correlogram(d, geo, n_resamples=99, rng=1),
+        decay=gradients.distance_decay(d, geo, rng=1),
+        partial=gradients.partial_mantel(
+            d,
+            gradients.environmental_distance(numeric[["Cu", "Zn"]]),
+            gradients.environmental_distance(numeric[["sand", "clay"]]),
+            n_resamples=99, rng=1),
+    )
