@@ -8,7 +8,7 @@ adjustment across hypotheses, correlations among the predictor matrices, and the
 hypothesis (see :mod:`.verdicts`). One module per stage: :mod:`.community` (community,
 environment, geography), :mod:`.ordination` (ordination and fitting), :mod:`.matrix` (the
 Mantel family, regression, correlogram, distance decay) and :mod:`.verdicts`; the demo's
-planted-truth step lives with the demo (``gradients.report._demo``).
+planted-truth step lives with the demo (``gradients.report._demo_truth``, beside the demo code).
 
 :data:`STEPS` is the one list :func:`~gradients.report._pipeline.run_steps` runs: each step
 needs what the steps before it left in the context (the community and environmental distances
@@ -18,7 +18,7 @@ The report shows the sections in :data:`SECTION_ORDER`, which differs from the r
 
 from __future__ import annotations
 
-from .._demo import planted_truth_step
+from .._demo_truth import planted_truth_step
 from .._model import Section
 from .._pipeline import Step
 from .community import community_step, environment_step, geography_step
