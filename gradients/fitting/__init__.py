@@ -7,8 +7,9 @@ the suite's permutation engine, with restricted designs (strata, cyclic, toroida
 passed through; permutations are evaluated in batches by the kernels in ``_kernels``.
 """
 
-from ._factors import FactorFit, fit_factors
-from ._surface import SurfaceFit, fit_surface
-from ._vectors import VectorFit, fit_vectors
+from ._factors import ClassCentroidsResult, fit_factors
+from ._surface import SurfaceFitResult, fit_surface
+from ._vectors import GradientArrowsResult, fit_vectors
 
-__all__ = ["FactorFit", "SurfaceFit", "VectorFit", "fit_factors", "fit_surface", "fit_vectors"]
+__all__ = ["ClassCentroidsResult", "GradientArrowsResult", "SurfaceFitResult", "fit_factors",
+           "fit_surface", "fit_vectors"]

@@ -23,11 +23,11 @@ from ._common import (
 )
 from ._kernels import class_sums_between
 
-__all__ = ["FactorFit", "fit_factors"]
+__all__ = ["ClassCentroidsResult", "fit_factors"]
 
 
 @dataclass(frozen=True, repr=False)
-class FactorFit(ResultMixin):
+class ClassCentroidsResult(ResultMixin):
     """Factors (site classes) fitted as class centroids onto ordination axes.
 
     Attributes
@@ -108,7 +108,7 @@ def fit_factors(
     adjust: str | None = "holm",
     missing: str = "error",
     n_jobs: int = 1,
-) -> FactorFit:
+) -> ClassCentroidsResult:
     """Fit site classes (factors) as centroids in ordination space, with permutation tests.
 
     For each factor the class centroids of the site scores are computed, and the strength of
@@ -143,7 +143,7 @@ def fit_factors(
 
     Returns
     -------
-    FactorFit
+    ClassCentroidsResult
 
     Notes
     -----
@@ -241,7 +241,7 @@ def fit_factors(
         notes.append("Exact test: every distinct permutation was enumerated.")
     if (n_used < len(sc)).any():
         notes.append("Complete cases per factor: some factors use fewer sites (see column n).")
-    return FactorFit(
+    return ClassCentroidsResult(
         table=table,
         centroids=centroids,
         statistic=table["r2"].copy(),

@@ -12,7 +12,7 @@ from .._errors import InputError, format_items
 from .._result import format_value
 from .._validation import RNGLike, check_choice, check_n_jobs, check_n_resamples, seed_sequence
 from ._common import Design, align_table, fit_scores, missing_masks
-from ._surface_result import SurfaceFit, prediction_grid
+from ._surface_result import SurfaceFitResult, prediction_grid
 from ._surface_stats import approx_pvalue, curvature_statistic, permutation_statistic, pseudo_f
 from ._tprs import (
     CRITERIA,
@@ -25,7 +25,7 @@ from ._tprs import (
     thin_plate_basis,
 )
 
-__all__ = ["LINEAR_EDF", "SurfaceFit", "fit_surface"]
+__all__ = ["LINEAR_EDF", "SurfaceFitResult", "fit_surface"]
 
 #: The verdict calls a surface straight when its edf (intercept excluded) is below this ...
 LINEAR_EDF = 2.5
@@ -105,7 +105,7 @@ def fit_surface(
     grid_size: int = 50,
     missing: str = "error",
     n_jobs: int = 1,
-) -> SurfaceFit:
+) -> SurfaceFitResult:
     """Fit a smooth surface of one variable over two ordination axes.
 
     The variable is modelled as a penalised thin plate regression spline of the two axes [1]_
@@ -151,7 +151,7 @@ def fit_surface(
 
     Returns
     -------
-    SurfaceFit
+    SurfaceFitResult
 
     Notes
     -----
@@ -347,7 +347,7 @@ def fit_surface(
     fitted = pd.Series(fit.mu[0], index=sc.index, name=name)
     if n < 30:
         notes.append(f"Only {n} sites: the surface is only a rough guide.")
-    return SurfaceFit(
+    return SurfaceFitResult(
         variable=name, family=family, method=criterion, edf=edf, deviance_explained=dexp,
         smoothing=lam_hat, pvalue_approx=pval_approx, pvalue=pvalue, statistic=statistic,
         null_distribution=null, n_resamples=used, exact=exact, scheme=scheme_used,

@@ -15,12 +15,12 @@ from .._result import ResultMixin
 from .._validation import check_choice
 from ._tprs import ThinPlateBasis
 
-__all__ = ["SurfaceFit", "inverse_link", "predict_surface", "prediction_grid",
+__all__ = ["SurfaceFitResult", "inverse_link", "predict_surface", "prediction_grid",
            "surface_contours"]
 
 
 @dataclass(frozen=True, repr=False)
-class SurfaceFit(ResultMixin):
+class SurfaceFitResult(ResultMixin):
     """A smooth surface of one variable over two ordination axes.
 
     Attributes
@@ -99,8 +99,8 @@ class SurfaceFit(ResultMixin):
     @property
     def n(self) -> int:
         """Deprecated name of :attr:`n_sites`."""
-        warnings.warn("SurfaceFit.n is deprecated and will be removed in the next release; use "
-                      ".n_sites (same value).", DeprecationWarning, stacklevel=2)
+        warnings.warn("SurfaceFitResult.n is deprecated and will be removed in the next release; "
+                      "use .n_sites (same value).", DeprecationWarning, stacklevel=2)
         return self.n_sites
 
     def predict(self, points: pd.DataFrame | np.ndarray, *, scale: str = "response"):
@@ -134,7 +134,7 @@ class SurfaceFit(ResultMixin):
         return surface_contours(self, levels)
 
 
-def predict_surface(fit: SurfaceFit, points: object, *, scale: str = "response"):
+def predict_surface(fit: SurfaceFitResult, points: object, *, scale: str = "response"):
     check_choice("scale", scale, ("response", "link"))
     index = None
     if isinstance(points, pd.DataFrame):
@@ -158,7 +158,7 @@ def predict_surface(fit: SurfaceFit, points: object, *, scale: str = "response")
     return pd.Series(out, index=index, name=fit.variable) if index is not None else out
 
 
-def surface_contours(fit: SurfaceFit, levels: int | Sequence[float]) -> pd.DataFrame:
+def surface_contours(fit: SurfaceFitResult, levels: int | Sequence[float]) -> pd.DataFrame:
     import contourpy
 
     ny, nx = fit._grid_shape

@@ -24,14 +24,14 @@ from ._common import (
 )
 from ._kernels import project_batch
 
-__all__ = ["VectorFit", "fit_vectors"]
+__all__ = ["GradientArrowsResult", "fit_vectors"]
 
 #: With scale='auto', arrow tips reach at most this fraction of the site cloud on every axis.
 ARROW_FILL = 0.9
 
 
 @dataclass(frozen=True, repr=False)
-class VectorFit(ResultMixin):
+class GradientArrowsResult(ResultMixin):
     """Environmental variables fitted as vectors onto ordination axes.
 
     Attributes
@@ -88,8 +88,8 @@ class VectorFit(ResultMixin):
         return vector_arrows(self, scale)
 
 
-def vector_arrows(fit: VectorFit, scale: str | float) -> pd.DataFrame:
-    """Arrow tips for :meth:`VectorFit.arrows`."""
+def vector_arrows(fit: GradientArrowsResult, scale: str | float) -> pd.DataFrame:
+    """Arrow tips for :meth:`GradientArrowsResult.arrows`."""
     axes = list(fit.axes)
     raw = fit.table[axes].to_numpy() * np.sqrt(fit.table["r2"].to_numpy())[:, None]
     raw = np.nan_to_num(raw)
@@ -216,7 +216,7 @@ def fit_vectors(
     adjust: str | None = "holm",
     missing: str = "error",
     n_jobs: int = 1,
-) -> VectorFit:
+) -> GradientArrowsResult:
     """Fit every numeric environmental variable as a vector onto ordination axes.
 
     Each variable is regressed on the site scores of the chosen axes (with an intercept); the
@@ -262,7 +262,7 @@ def fit_vectors(
 
     Returns
     -------
-    VectorFit
+    GradientArrowsResult
 
     Notes
     -----
@@ -270,7 +270,7 @@ def fit_vectors(
     ||y_c||^2``; under a permutation only ``y`` moves, so ``r2`` for every permutation and
     variable is a matrix product (see :mod:`gradients.fitting._kernels`). With weights,
     ``r2 = 1 - RSS_w / TSS_w``, the weighted mean recomputed for every permutation.
-    The arrow multiplier of :meth:`VectorFit.arrows` is explained there.
+    The arrow multiplier of :meth:`GradientArrowsResult.arrows` is explained there.
 
     References
     ----------
@@ -349,7 +349,7 @@ def fit_vectors(
                      "and its p-value are unstable." if (n_used < len(sc)).any() else
                      f"Only {len(sc)} sites: r2 and its p-value are unstable.")
     bounds = np.vstack([x.min(axis=0), x.max(axis=0)])
-    return VectorFit(
+    return GradientArrowsResult(
         table=table,
         statistic=table["r2"].copy(),
         pvalue=table["pvalue"].copy(),

@@ -40,7 +40,7 @@ from ._ordination import (
 from ._style import GRID
 
 if TYPE_CHECKING:
-    from ..fitting import FactorFit, VectorFit
+    from ..fitting import ClassCentroidsResult, GradientArrowsResult
 
 __all__ = ["biplot"]
 
@@ -48,8 +48,8 @@ __all__ = ["biplot"]
 def biplot(
     ordination: HasScores | pd.DataFrame,
     *,
-    vectors: VectorFit | None = None,
-    factors: FactorFit | None = None,
+    vectors: GradientArrowsResult | None = None,
+    factors: ClassCentroidsResult | None = None,
     groups: pd.Series | None = None,
     taxa: pd.DataFrame | None = None,
     site_labels: bool = False,
@@ -71,10 +71,10 @@ def biplot(
         As in :func:`sites`. The stress of an NMDS is shown in the note beside the title; an
         ordination reporting ``proportion_explained`` by axis (PCoA, PCA) puts the share of each
         plotted axis in its title.
-    vectors : VectorFit, optional
+    vectors : GradientArrowsResult, optional
         Fitted vectors, drawn by :func:`arrows` (the tips of ``vectors.arrows(arrow_scale)``);
         the multiplier is shown in the note ("arrows ×0.821").
-    factors : FactorFit, optional
+    factors : ClassCentroidsResult, optional
         Fitted factors, whose class centroids are drawn by :func:`centroids`.
     groups : Series, optional
         Group of each site (e.g. the classes of the first factor), as in :func:`sites`.

@@ -49,7 +49,7 @@ from ._kit import (
 from ._style import FADED, HOLLOW, INK, MUTED, PALETTE, SIZES, group_style
 
 if TYPE_CHECKING:
-    from ..fitting import FactorFit, VectorFit
+    from ..fitting import ClassCentroidsResult, GradientArrowsResult
 
 __all__ = ["arrows", "centroids", "legend", "sites", "taxa"]
 
@@ -410,7 +410,7 @@ def taxa(
 
 
 def arrows(
-    vectors: VectorFit,
+    vectors: GradientArrowsResult,
     *,
     scale: float | Literal["auto"] = "auto",
     alpha: float = 0.05,
@@ -423,7 +423,7 @@ def arrows(
 
     Parameters
     ----------
-    vectors : VectorFit
+    vectors : GradientArrowsResult
         The result of :func:`~gradients.fit_vectors`. The arrows drawn are exactly
         ``vectors.arrows(scale)``: direction cosines times sqrt(r2) times one common
         multiplier, the same tips as the ``plot_*`` columns of the report's
@@ -466,7 +466,7 @@ def arrows(
 
 
 def centroids(
-    factors: FactorFit,
+    factors: ClassCentroidsResult,
     *,
     axes: tuple[str, str] = ("axis1", "axis2"),
     ax: Axes | None = None,
@@ -476,7 +476,7 @@ def centroids(
 
     Parameters
     ----------
-    factors : FactorFit
+    factors : ClassCentroidsResult
         The result of :func:`~gradients.fit_factors` (its ``centroids`` table). Centroids are
         labelled by level, or ``factor: level`` when several factors were fitted.
     axes, ax, figsize

@@ -39,7 +39,7 @@ from ._kit import (
 from ._style import ACCENT, HOLLOW, INK, MUTED, PALETTE, SEQUENTIAL_CMAP, SIZES
 
 if TYPE_CHECKING:
-    from ..fitting import SurfaceFit
+    from ..fitting import SurfaceFitResult
 
 __all__ = ["shepard", "surface"]
 
@@ -111,7 +111,7 @@ def _surface_inputs(fit: object) -> tuple[str, tuple[str, str], pd.DataFrame]:
 
 
 def surface(
-    fit: SurfaceFit,
+    fit: SurfaceFitResult,
     ordination: HasScores | pd.DataFrame | None = None,
     *,
     levels: int | Sequence[float] = 8,
@@ -124,7 +124,7 @@ def surface(
 
     Parameters
     ----------
-    fit : SurfaceFit
+    fit : SurfaceFitResult
         The result of :func:`~gradients.fit_surface`. The filled bands come from its
         prediction grid (``fit.grid``; nothing is drawn outside the sites' hull, where the grid
         holds NaN), the contour lines from ``fit.contours(line_levels)``, the lines the report

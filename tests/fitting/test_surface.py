@@ -245,7 +245,7 @@ def test_input_errors():
         fit_surface(sc, gap, n_resamples=0)
     fit = fit_surface(sc, gap, n_resamples=0, missing="complete")
     assert fit.n_sites == 29
-    with pytest.warns(DeprecationWarning, match="SurfaceFit.n is deprecated.*use .n_sites"):
+    with pytest.warns(DeprecationWarning, match="SurfaceFitResult.n is deprecated.*use .n_sites"):
         assert fit.n == 29
 
 

@@ -1,13 +1,13 @@
-"""One arrow rule: the biplot draws the tips of ``VectorFit.arrows()``, checked in closed form.
+"""One arrow rule: the biplot draws the tips of ``GradientArrowsResult.arrows()``, in closed form.
 
 The arrow of a fitted vector is its direction cosines times sqrt(r2) (Kantvilas & Minchin
 1989; Legendre & Legendre 2012, Numerical Ecology, 3rd English ed., section 9.1, from memory):
 the cosines are the ordinary least-squares coefficients of the variable on the (centred) site
 scores, normalised to unit length, and r2 is the coefficient of determination of that
 regression. Here both are recomputed with ``numpy.linalg.lstsq``, independently of the fitting
-code. The common multiplier is the documented rule of ``VectorFit.arrows("auto")``: the largest
-with which every tip stays within 90 % of the sites' extent from the origin along each axis, in
-the arrow's own direction.
+code. The common multiplier is the documented rule of
+``GradientArrowsResult.arrows("auto")``: the largest with which every tip stays within 90 % of
+the sites' extent from the origin along each axis, in the arrow's own direction.
 """
 
 from __future__ import annotations
