@@ -204,7 +204,7 @@ def fit_factors(
             between[j] += wg.sum() * float(((centre - xbar) ** 2).sum())
             centroid_rows.append({"factor": name, "level": level,
                                   **dict(zip(sc.columns, centre, strict=True)),
-                                  "n": int(members.sum())})
+                                  "n_sites": int(members.sum())})
         sizes = np.bincount(codes, minlength=len(levels))
         if sizes.min() < 2:
             single = [lev for lev, s in zip(levels, sizes, strict=True) if s < 2]
@@ -230,10 +230,10 @@ def fit_factors(
     adjusted = adjust_pvalues(outcome.pvalue, adjust)
     n_used = masks.sum(axis=0)
     table = pd.DataFrame({"r2": outcome.statistic, "pvalue": outcome.pvalue,
-                          "pvalue_adjusted": adjusted, "n": n_used.astype(np.int64),
+                          "pvalue_adjusted": adjusted, "n_sites": n_used.astype(np.int64),
                           "n_levels": n_levels}, index=fac.columns)
     table.index.name = "factor"
-    centroids = pd.DataFrame(centroid_rows, columns=["factor", "level", *sc.columns, "n"])
+    centroids = pd.DataFrame(centroid_rows, columns=["factor", "level", *sc.columns, "n_sites"])
     if adjust is None and fac.shape[1] > 1:
         notes.append(f"No multiplicity adjustment across the {fac.shape[1]} factors "
                      "(pvalue_adjusted repeats pvalue).")

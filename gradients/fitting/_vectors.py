@@ -334,7 +334,7 @@ def fit_vectors(
     table["r2"] = outcome.statistic
     table["pvalue"] = outcome.pvalue
     table["pvalue_adjusted"] = adjusted
-    table["n"] = n_used.astype(np.int64)
+    table["n_sites"] = n_used.astype(np.int64)
     table.index.name = "variable"
     if (n_used < len(sc)).any():
         notes.append(f"Complete cases per variable: {int((n_used < len(sc)).sum())} variable(s) "

@@ -46,7 +46,7 @@ def test_r2_is_between_share_and_centroids_are_class_means():
     cents = fit.centroids[fit.centroids.factor == "habitat"].set_index("level")
     means = sc.groupby(fac["habitat"])[["axis1", "axis2"]].mean()
     np.testing.assert_allclose(cents.loc[means.index, ["axis1", "axis2"]], means, atol=1e-12)
-    assert (cents["n"] == 12).all()
+    assert (cents["n_sites"] == 12).all()
 
 
 def test_one_axis_r2_matches_scipy_one_way_anova():
@@ -152,6 +152,6 @@ def test_input_errors():
     with pytest.raises(InputError, match=r"'habitat' at site\(s\) 'site4'"):
         fit_factors(sc, broken, n_resamples=9)
     fit = fit_factors(sc, broken, n_resamples=9, rng=0, missing="complete")
-    assert fit.table.loc["habitat", "n"] == 35
+    assert fit.table.loc["habitat", "n_sites"] == 35
     with pytest.raises(InputError, match="but not in"):
         fit_factors(sc.iloc[1:], fac, n_resamples=9)

@@ -44,7 +44,7 @@ def test_r2_and_cosines_match_statsmodels_ols():
         slopes = ols.params[1:]
         np.testing.assert_allclose(fit.table.loc[var, ["axis1", "axis2", "axis3"]].to_numpy(),
                                    slopes / np.linalg.norm(slopes), atol=1e-10)
-        assert fit.table.loc[var, "n"] == 40
+        assert fit.table.loc[var, "n_sites"] == 40
 
 
 def test_weighted_r2_matches_statsmodels_wls_and_batched_null_matches_direct():
@@ -189,7 +189,7 @@ def test_missing_values_error_names_variable_and_sites_or_complete_cases():
     with pytest.raises(InputError, match=r"'clay' at site\(s\) 's003', 's017'.*missing='complete'"):
         fit_vectors(sc, env, n_resamples=9)
     fit = fit_vectors(sc, env, n_resamples=99, rng=4, missing="complete")
-    assert fit.table.loc["clay", "n"] == 28 and fit.table.loc["pH", "n"] == 30
+    assert fit.table.loc["clay", "n_sites"] == 28 and fit.table.loc["pH", "n_sites"] == 30
     keep = env["clay"].notna()
     sub = fit_vectors(sc[keep], env.loc[keep, ["clay"]], n_resamples=9, rng=0)
     assert fit.table.loc["clay", "r2"] == pytest.approx(sub.table.loc["clay", "r2"], abs=1e-12)

@@ -97,7 +97,7 @@ def vectors_step(ctx: Context) -> None:
                 for v, row in sig.head(5).iterrows()) + ".")
     sec.tables["vector_fits"] = table
     sec.shown.append("vector_fits")
-    sec.display["vector_fits"] = [*axes, "r2", "pvalue", "pvalue_adjusted", "n"]
+    sec.display["vector_fits"] = [*axes, "r2", "pvalue", "pvalue_adjusted", "n_sites"]
     sec.notes.extend(fit.notes)
     ctx.sections.append(sec)
     ctx.methods.append(
