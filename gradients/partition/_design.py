@@ -229,7 +229,7 @@ def check_rank(blocks: Sequence[Block]) -> None:
         used = [int(independent[i]) for i in np.flatnonzero(np.abs(coef) > 1e-6)]
         if used:
             parts.append(f"{label(j)} is a linear combination of "
-                         f"{format_items([label(i) for i in used], quote=False)}")
+                         f"{_and([label(i) for i in used])}")
         else:  # pragma: no cover - a centred non-constant column has some direction
             parts.append(f"{label(j)} adds no direction of its own")
     where = "the tables" if several else f"`{blocks[0].name}`"
@@ -238,6 +238,11 @@ def check_rank(blocks: Sequence[Block]) -> None:
         "separate them: drop one of each group (or combine them into one variable). A factor "
         "whose levels match another factor's, or a variable given in two tables, does this.",
         columns=[names[j] for j in piv[rank:]])
+
+
+def _and(items: list[str]) -> str:
+    """``'a'``, ``'a' and 'b'``, ``'a', 'b' and 'c'``."""
+    return items[0] if len(items) == 1 else ", ".join(items[:-1]) + " and " + items[-1]
 
 
 def orthonormal(x: np.ndarray) -> np.ndarray:

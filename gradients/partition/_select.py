@@ -39,6 +39,10 @@ STOP_REASONS = {
 }
 
 
+#: Adjusted R2 values this close (relative) count as equal in the second stopping rule.
+R2_RTOL = 1e-10
+
+
 @dataclass(frozen=True, repr=False)
 class ForwardSelectionResult(ResultMixin):
     """Outcome of :func:`forward_select`.
@@ -199,7 +203,9 @@ def forward_select(
         test = term_test(f"candidate {name!r}", g, basis, best_q)  # type: ignore[arg-type]
         p = float(np.asarray(run_tests([test], plan, n_jobs=n_jobs,
                                        task="forward selection").pvalue)[0])
-        significant, below = p <= alpha, best_adj <= adj_global
+        # the last candidate's model is the global model: equal up to rounding
+        significant = p <= alpha
+        below = best_adj <= adj_global + R2_RTOL * max(abs(adj_global), 1.0)
         rows.append({"order": len(rows) + 1, "variable": name, "r2_adjusted": best_adj,
                      "gain": best_adj - adj_prev, "statistic": test.statistic, "pvalue": p,
                      "entered": significant and below})
