@@ -557,7 +557,7 @@ def permuted_products(g: object, basis: np.ndarray, orders: np.ndarray) -> np.nd
     for s in range(0, k, step):
         iv = inv[s : s + step]
         kb = iv.shape[0]
-        r = b[iv.T].reshape(n, kb * m)
-        gr = (g @ r).reshape(n, kb, m)
-        out[s : s + kb] = np.einsum("ibm,ibl->bml", r.reshape(n, kb, m), gr)
+        moved = b[iv]  # (kb, n, m): the basis rows moved by each order
+        gr = (g @ moved.transpose(1, 0, 2).reshape(n, kb * m)).reshape(n, kb, m)
+        np.matmul(moved.transpose(0, 2, 1), gr.transpose(1, 0, 2), out=out[s : s + kb])
     return out
