@@ -24,18 +24,18 @@ import os
 os.environ.setdefault("OPENBLAS_NUM_THREADS", "1")
 os.environ.setdefault("OMP_NUM_THREADS", "1")
 
-import platform  # noqa: E402
-import time  # noqa: E402
-from pathlib import Path  # noqa: E402
+import platform
+import time
+from pathlib import Path
 
-import numpy as np  # noqa: E402
-import pandas as pd  # noqa: E402
-from scipy.spatial.distance import pdist  # noqa: E402
+import numpy as np
+import pandas as pd
+from scipy.spatial.distance import pdist
 
-from gradients.distance import DistanceMatrix, gower_centred  # noqa: E402
-from gradients.partition import dbrda, forward_select  # noqa: E402
-from gradients.partition._design import orthonormal, residualise  # noqa: E402
-from gradients.partition._ftest import make_plan, residual_matrix, run_tests, term_test  # noqa: E402
+from gradients.distance import DistanceMatrix, gower_centred
+from gradients.partition import dbrda, forward_select
+from gradients.partition._design import orthonormal, residualise
+from gradients.partition._ftest import make_plan, residual_matrix, run_tests, term_test
 
 
 def _timed(fn, repeat: int = 1) -> tuple[float, object]:

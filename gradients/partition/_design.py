@@ -235,8 +235,9 @@ def check_rank(blocks: Sequence[Block]) -> None:
     where = "the tables" if several else f"`{blocks[0].name}`"
     raise InputError(
         f"Collinear columns in {where}: " + "; ".join(parts) + ". A linear model cannot "
-        "separate them: drop one of each group (or combine them into one variable). A factor "
-        "whose levels match another factor's, or a variable given in two tables, does this.",
+        "separate them: drop one of each group (or combine them into one variable). Parts of a "
+        "composition that sum to a constant (sand, silt and clay; drop one part), a factor "
+        "whose levels match another factor's, or a variable given in two tables do this.",
         columns=[names[j] for j in piv[rank:]])
 
 

@@ -251,3 +251,17 @@ def test_non_euclidean_matrix_reports_negative_eigenvalues_and_corrections_remov
     assert fixed.correction == "lingoes" and fixed.constant > 0
     assert not any("not Euclidean" in s for s in fixed.notes)
     assert (fixed.unconstrained >= -1e-9 * fixed.unconstrained.max()).all()
+
+
+def test_tests_run_in_memory_bounded_groups_give_the_same_pvalues(monkeypatch):
+    # grouping the tests to bound memory must not change a single p-value: every group runs
+    # the same plan (same rearrangements)
+    from gradients.partition import _ftest
+
+    env, cov, y, lab = _survey(n=30, responses=3, seed=10)
+    d = DistanceMatrix(pdist(y), lab)
+    whole = dbrda(d, env, covariables=cov, n_resamples=199, rng=5)
+    monkeypatch.setattr(_ftest, "MEMORY_BUDGET", 1)  # one test per engine run
+    split = dbrda(d, env, covariables=cov, n_resamples=199, rng=5)
+    pd.testing.assert_frame_equal(whole.table, split.table)
+    np.testing.assert_array_equal(whole.null_distribution, split.null_distribution)
