@@ -125,8 +125,26 @@ def bench_selection(n: int = 300, candidates: int = 30, n_perm: int = 999) -> li
             f"selected) | - | {t:.1f} | target < 60 s |"]
 
 
+def _free_cores() -> float:
+    """Speed-up of two threads over one on plain BLAS products right now: how much of the
+    second core the other work on this shared machine left free (2.0 = all of it)."""
+    from concurrent.futures import ThreadPoolExecutor
+
+    a = np.random.default_rng(0).normal(size=(500, 500))
+
+    def work(_: int) -> None:
+        for _ in range(15):
+            a @ a
+
+    one, _ = _timed(lambda: [work(i) for i in range(4)])
+    with ThreadPoolExecutor(2) as pool:
+        two, _ = _timed(lambda: list(pool.map(work, range(4))))
+    return one / two
+
+
 def main() -> None:
     before = os.getloadavg()[0]
+    free = _free_cores()
     rows, diff = bench_partial()
     rows += bench_selection()
     after = os.getloadavg()[0]
@@ -136,7 +154,9 @@ def main() -> None:
         f"Machine: {platform.machine()}, {os.cpu_count()} cores shared with other work "
         f"(1-minute load average {before:.1f} before, {after:.1f} after), Python "
         f"{platform.python_version()}, numpy {np.__version__}, BLAS single-threaded. Times in "
-        "seconds; the engine's runs best of 3, the loop one run (999 refits).",
+        "seconds; the engine's runs best of 3, the loop one run (999 refits). Two threads ran "
+        f"plain BLAS products {free:.2f}x as fast as one at the start (2.00 = both cores "
+        "free): `n_jobs=2` can gain only that much.",
         "",
         "| task | per-permutation `lstsq` refit | gradients | ratio |",
         "|---|---:|---:|---:|",

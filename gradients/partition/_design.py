@@ -156,9 +156,7 @@ def read_block(table: object, labels: pd.Index, *, name: str) -> Block:
         raise InputError(f"`{name}` column(s) {format_items(constant)} have the same value at "
                          "every site: they cannot explain any difference between sites. Drop "
                          "them.", columns=constant)
-    kept = sorted(set(index))
-    terms = tuple(str(frame.columns[t]) for t in kept)
-    index = [kept.index(t) for t in index]
+    terms = tuple(str(c) for c in frame.columns)
     return Block(name, np.column_stack(values), tuple(columns), terms, tuple(index))
 
 
