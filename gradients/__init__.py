@@ -4,16 +4,17 @@ The one place users import from. Names are loaded on first use, so ``import grad
 command line start fast even though the stages pull in geopandas, statsmodels and numba.
 
 Stages, one subpackage each, in the order data flows through them; each imports only from the
-stages before it, and ``fitting`` and ``matrix`` never import each other::
+stages before it, and ``fitting``, ``matrix`` and ``partition`` never import each other::
 
-    data -> distance -> ordination -> permutation -> {fitting, matrix} -> plot -> report
+    data -> distance -> ordination -> permutation -> {fitting, matrix, partition} -> plot -> report
 
 ``data`` reads and checks the survey; ``distance`` builds dissimilarities and distances;
 ``ordination`` gives site scores (PCoA, NMDS, PCA); ``permutation`` is the one engine behind
 every permutation test; ``fitting`` puts environmental variables onto ordination space;
-``matrix`` holds the Mantel family; ``plot`` draws figures from result objects; ``report`` runs
-a project and writes its folder. ``gradients.cli`` parses the command line and calls
-``report``.
+``matrix`` holds the Mantel family; ``partition`` splits turnover between environment and
+space on the raw data (dbRDA, forward selection, spatial eigenvectors, variation
+partitioning); ``plot`` draws figures from result objects; ``report`` runs a project and
+writes its folder. ``gradients.cli`` parses the command line and calls ``report``.
 """
 
 from __future__ import annotations
@@ -63,6 +64,15 @@ _EXPORTS: dict[str, str] = {
     "mantel_correlogram": "matrix",
     "matrix_regression": "matrix",
     "distance_decay": "matrix",
+    # partition
+    "dbrda": "partition",
+    "forward_select": "partition",
+    "spatial_eigenvectors": "partition",
+    "partition_variation": "partition",
+    "DbRDAResult": "partition",
+    "ForwardSelectionResult": "partition",
+    "SpatialEigenvectorsResult": "partition",
+    "VariationPartitionResult": "partition",
     # report
     "load_project": "report",
     "init_project": "report",
