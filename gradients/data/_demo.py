@@ -47,6 +47,10 @@ _HABITAT_P = {"tributary": (0.2, 0.3, 0.5), "floodplain": (0.5, 0.4, 0.1)}
 CENSOR_LIMIT_CD = 0.2
 SPATIAL_RANGE_KM = 3.0
 NB_SIZE = 1.5
+#: The projected CRS of the demo's river network (WGS 84 / UTM zone 32N, which holds the basin).
+NETWORK_CRS = "EPSG:32632"
+#: Floodplain sites farther than this (km) from the main stem's axis lie on a side channel.
+SIDE_CHANNEL_KM = 0.25
 
 
 class _NotGiven:
@@ -105,6 +109,10 @@ class DemoScenario:
         values below the detection limit written ``"<0.2"``.
     locations : GeoDataFrame
         Site points in EPSG:4326 with the reach of each site, as written to ``locations.gpkg``.
+    network : GeoDataFrame
+        The river network in EPSG:32632 (UTM zone 32N), as written to ``streams.gpkg``: the two
+        tributaries and the main stem through the sites, and a side channel joining each
+        floodplain site that lies off the main stem (see :func:`simulate_survey`).
     site_truth : DataFrame
         Per site: local coordinates (km), reach, valley position (0 at the sources, 1 at the
         foot of the floodplain), distance to the Tellmark works (km), the contamination
@@ -128,6 +136,7 @@ class DemoScenario:
     site_truth: pd.DataFrame
     taxon_truth: pd.DataFrame
     seed: int | None
+    network: Any = None
 
     def __repr__(self) -> str:
         return (f"DemoScenario(seed={self.seed}, sites={self.community.shape[0]}, "
@@ -139,7 +148,8 @@ class DemoScenario:
         return Survey(self.community, self.environment, self.locations, censored=censored)
 
     def write(self, folder: str | os.PathLike[str]) -> list[Path]:
-        """Write ``community.csv``, ``environment.csv`` and ``locations.gpkg`` into `folder`."""
+        """Write ``community.csv``, ``environment.csv``, ``locations.gpkg`` and (when the
+        scenario has one) the river network ``streams.gpkg`` into `folder`."""
         folder = Path(folder)
         folder.mkdir(parents=True, exist_ok=True)
         paths = [folder / "community.csv", folder / "environment.csv",
@@ -150,6 +160,11 @@ class DemoScenario:
             paths[2].unlink()
         self.locations.reset_index().to_file(paths[2], driver="GPKG", layer="sites",
                                              engine="pyogrio")
+        if self.network is not None:
+            paths.append(folder / "streams.gpkg")
+            if paths[3].exists():
+                paths[3].unlink()
+            self.network.to_file(paths[3], driver="GPKG", layer="streams", engine="pyogrio")
         return paths
 
 
@@ -247,6 +262,15 @@ def simulate_survey(
     above. Counts are negative binomial with size 1.5 (gamma-Poisson). A site left with no
     individuals gets one of its most expected taxon, and a taxon never drawn gets one at its
     most favourable site, so the tables pass validation; both are rare and deterministic.
+
+    **River network.** ``network`` holds the streams the sites were sampled on, for in-stream
+    distances: Fennick Brook and Ashlow Water run from their sources through their sites, in
+    downstream order, to the confluence; the Corvanne main stem runs from the confluence to the
+    foot of the floodplain through the floodplain sites within 0.25 km of the valley axis, and
+    every other floodplain site lies on a side channel (backwater or drain) that joins the main
+    stem at the foot of the perpendicular from the site. Every site is a vertex of its line, so
+    it lies on the network. It is built from the site positions alone, after every random draw
+    (it draws nothing), so it changes no table.
 
     **How strong.** On the expected community (Hellinger-transformed expected counts), a
     quadratic in the contamination gradient explains R^2 = 0.54, a quadratic in the fine
@@ -383,7 +407,64 @@ def simulate_survey(
         **{f"effect_{h}": habitat_effect[i] for i, h in enumerate(HABITATS)},
         "rare": rare,
     }, index=pd.Index(taxa, name="taxon", dtype=object))
-    return DemoScenario(community, environment, locations, site_truth, taxon_truth, made_from)
+    network = _stream_network(x, y, reach)  # after every draw; draws nothing
+    return DemoScenario(community, environment, locations, site_truth, taxon_truth, made_from,
+                        network)
+
+
+# -- the river network (built after every draw of the survey; it draws nothing) ---------------
+def _lonlat(x: np.ndarray, y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Local km to lon/lat, rounded as the site locations are (so site vertices coincide)."""
+    lon = np.round(ORIGIN_LON + x / (_KM_PER_DEG * np.cos(np.radians(ORIGIN_LAT))), 6)
+    lat = np.round(ORIGIN_LAT + y / _KM_PER_DEG, 6)
+    return lon, lat
+
+
+def _stream_network(x: np.ndarray, y: np.ndarray, reach: np.ndarray) -> Any:
+    """The streams of the basin through the sites, in UTM zone 32N (see simulate_survey)."""
+    import geopandas as gpd
+    import shapely
+
+    lines: list[np.ndarray] = []
+    names: list[str] = []
+    kinds: list[str] = []
+    for name, source in ((REACHES[0], FENNICK_SOURCE), (REACHES[1], ASHLOW_SOURCE)):
+        on = reach == name  # sites are in downstream order within a reach
+        lines.append(np.vstack([source, np.column_stack([x[on], y[on]]), CONFLUENCE]))
+        names.append(name)
+        kinds.append("tributary")
+    on = reach == REACHES[2]
+    start, end = np.asarray(CONFLUENCE, float), np.asarray(FLOODPLAIN_END, float)
+    length = float(np.hypot(*(end - start)))
+    axis = (end - start) / length
+    normal = np.array([-axis[1], axis[0]])
+    rel = np.column_stack([x[on], y[on]]) - start
+    along, across = rel @ axis, rel @ normal
+    near = np.abs(across) <= SIDE_CHANNEL_KM
+    # the main stem: through the near sites in order along the axis; a far site's side
+    # channel joins it at the foot of the perpendicular, a vertex of the main stem
+    stem_s = np.r_[0.0, along[near], length]
+    stem_o = np.r_[0.0, across[near], 0.0]
+    order = np.argsort(stem_s, kind="stable")
+    stem_s, stem_o = stem_s[order], stem_o[order]
+    foot_o = np.interp(along[~near], stem_s, stem_o)
+    every_s = np.r_[stem_s, along[~near]]
+    every_o = np.r_[stem_o, foot_o]
+    order = np.argsort(every_s, kind="stable")
+    lines.append(start + np.outer(every_s[order], axis) + np.outer(every_o[order], normal))
+    names.append("River Corvanne")
+    kinds.append("main stem")
+    sites = np.column_stack([x[on], y[on]])[~near]
+    feet = start + np.outer(along[~near], axis) + np.outer(foot_o, normal)
+    for site, foot in zip(sites, feet, strict=True):
+        lines.append(np.vstack([site, foot]))
+        names.append("side channel")
+        kinds.append("side channel")
+    geometry = [shapely.linestrings(np.column_stack(_lonlat(line[:, 0], line[:, 1])))
+                for line in lines]
+    network = gpd.GeoDataFrame({"name": names, "kind": kinds}, geometry=geometry,
+                               crs="EPSG:4326")
+    return network.to_crs(NETWORK_CRS)
 
 
 def demo_survey(

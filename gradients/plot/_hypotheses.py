@@ -1,14 +1,13 @@
-"""Figures of hypotheses and of the stages that rank and partition them.
+"""Figures of hypotheses and of the stage that ranks them.
 
 :func:`hypotheses` draws the effect of each named hypothesis (the report's verdict figure).
-:func:`ranking`, :func:`turnover_curves` and :func:`partition` are drawn from tidy tables: they
-were written ahead of the ranking and partitioning stages, whose result objects do not exist
-yet, and take the tables those stages are planned to produce.
+:func:`ranking` and :func:`turnover_curves` are drawn from tidy tables: they were written ahead
+of the ranking stage, whose result objects do not exist yet, and take the tables that stage is
+planned to produce. (The partition stage's figures are in :mod:`._partition`.)
 
 Artists carry ``_gr:`` labels (hidden from legends) for programs and tests:
 ``_gr:dots-filled``, ``_gr:dots-hollow``, ``_gr:interval`` (hypotheses), ``_gr:bars`` (ranking,
-on the bar container), ``_gr:curve`` (turnover), ``_gr:fractions`` (partition, on the bar
-containers).
+on the bar container), ``_gr:curve`` (turnover).
 """
 
 from __future__ import annotations
@@ -41,7 +40,7 @@ from ._kit import (
 )
 from ._style import HOLLOW, INK, MUTED, PALETTE, SIZES, group_style
 
-__all__ = ["hypotheses", "partition", "ranking", "turnover_curves"]
+__all__ = ["hypotheses", "ranking", "turnover_curves"]
 
 
 def _row_labels(tb: pd.DataFrame, column: str | None) -> list[str]:
@@ -418,93 +417,3 @@ def turnover_curves(
                      x=0.012, ha="left", fontsize=10.0, fontweight="bold", color=INK,
                      parse_math=False)
     return fig
-
-
-def partition(
-    fractions: pd.DataFrame,
-    *,
-    value: str = "r2_adjusted",
-    label: str = "fraction",
-    title: str | None = None,
-    ax: Axes | None = None,
-    figsize: tuple[float, float] | None = None,
-) -> Axes:
-    """Variation partitioning as one stacked bar of explained fractions plus the residual.
-
-    Parameters
-    ----------
-    fractions : DataFrame
-        One row per fraction of variation (unique to one set of variables, shared between
-        sets, and optionally the residual), with a text column `label` (the index is used when
-        absent) and a numeric column `value` (the fraction's adjusted R², no missing values).
-        Negative adjusted fractions (possible when a fraction explains less than chance) are
-        listed beside the title but not drawn. Rows whose label contains "shared" or "&" are
-        drawn hatched; a row whose label is "residual" (any case) is drawn in white; if none
-        is given, the residual is 1 minus the sum of the positive fractions.
-    value : str, default "r2_adjusted"
-    label : str, default "fraction"
-    title : str, optional
-        Default "Partition of community variation".
-    ax : matplotlib.axes.Axes, optional
-        Draw into these axes; by default a new figure in the house style is made.
-    figsize : (float, float), optional
-        Default (6.6, 2.6).
-
-    Returns
-    -------
-    matplotlib.axes.Axes
-        A horizontal bar from 0 to 1 split into the fractions (``_gr:fractions``), each labelled
-        with its share in percent, and a legend naming them.
-
-    Examples
-    --------
-    >>> import pandas as pd
-    >>> from gradients import plot
-    >>> f = pd.DataFrame({"fraction": ["contamination only", "space only", "shared"],
-    ...                   "r2_adjusted": [0.2, 0.1, 0.05]})
-    >>> ax = plot.partition(f)
-    """
-    size = check_figsize(figsize, (6.6, 2.6))
-    tb = frame(fractions, "fractions", [value], finite=[value])
-    names = _row_labels(tb, label)
-    vals = tb[value].to_numpy()
-    is_resid = np.array([n.strip().lower() == "residual" for n in names])
-    drawn = [(n, float(v)) for n, v, r in zip(names, vals, is_resid, strict=True)
-             if v > 0 and not r]
-    negative = [(n, float(v)) for n, v, r in zip(names, vals, is_resid, strict=True)
-                if v <= 0 and not r]
-    resid = float(vals[is_resid][0]) if is_resid.any() else 1.0 - sum(v for _, v in drawn)
-    with canvas(ax, size) as ax:
-        ax.grid(False)
-        ax.spines["left"].set_visible(False)
-        ax.set_yticks([])
-        left = 0.0
-        handles: list[Any] = []
-        colour_i = 0
-        for name, v in [*drawn, ("residual", max(resid, 0.0))]:
-            if name == "residual":
-                face, hatch = HOLLOW, None
-            else:
-                face = PALETTE[colour_i % len(PALETTE)]
-                colour_i += 1
-                hatch = "////" if ("shared" in name.lower() or "&" in name) else None
-            ax.barh([0], [v], left=left, height=0.55, color=face, edgecolor=INK, linewidth=0.7,
-                    hatch=hatch, zorder=2, label="_gr:fractions")
-            if v >= 0.04:
-                light = face in (HOLLOW, PALETTE[5], PALETTE[6], PALETTE[4])
-                ax.text(left + v / 2, 0, f"{100 * v:.0f} %", ha="center", va="center",
-                        fontsize=7.0, color=INK if light else "white", fontweight="bold",
-                        zorder=3)
-            handles.append(Patch(facecolor=face, edgecolor=INK, hatch=hatch,
-                                 label=f"{name} ({100 * v:.1f} %)"))
-            left += v
-        ax.set_xlim(0, max(1.0, left))
-        ax.set_ylim(-0.6, 0.6)
-        ax.set_xlabel(f"Share of community variation ({VALUE_NAMES.get(value, value)})",
-                      parse_math=False)
-        notes = []
-        if negative:
-            notes.append("not drawn (≤ 0): " + ", ".join(f"{n} {v:.3f}" for n, v in negative))
-        set_title(ax, title, "Partition of community variation", notes)
-        place_legend(ax, handles, outside="lower center", ncols=min(len(handles), 3))
-    return ax

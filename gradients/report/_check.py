@@ -5,6 +5,7 @@ from __future__ import annotations
 from pathlib import Path
 from typing import Any
 
+from ._geography import site_distances
 from ._project import Project, load_project, project_from_dict
 from ._run import check_hypotheses, read_project_survey
 
@@ -12,10 +13,17 @@ __all__ = ["check_project", "check_tables", "describe"]
 
 
 def check_project(path: str | Path) -> tuple[Any, Project]:
-    """Load and validate a project file and its tables; return the survey and project."""
+    """Load and validate a project file and its tables; return the survey and project.
+
+    The distance between sites is computed as a run would (:func:`site_distances`), so that a
+    river network that misses a site, or a method that does not suit the coordinates, is
+    reported here with the key to change.
+    """
     project = load_project(path)
     survey = read_project_survey(project)
     check_hypotheses(project, survey)
+    if survey.locations is not None:
+        site_distances(project.settings, survey.locations)
     return survey, project
 
 
@@ -48,6 +56,16 @@ def describe(survey: Any, project: Project) -> str:
     lines.append(f"  locations:  {'yes' if survey.locations is not None else 'no'}"
                  + (f" (CRS {survey.locations.crs.to_string()})"
                     if survey.locations is not None else ""))
+    if survey.locations is not None:
+        method = project["geography.method"]
+        network = project["geography.network"]
+        if network is not None:
+            lines.append(f"  geography:  in-stream distances along {Path(network).name} "
+                         f"(sites within {project['geography.snap_tolerance']:g} m of a line)")
+        else:
+            lines.append(f"  geography:  {method} distances" + (
+                " (geodesic for longitude/latitude, euclidean for projected coordinates)"
+                if method == "auto" else ""))
     censored = getattr(survey, "censored", None)
     if censored is not None and censored.to_numpy().any():
         counts = censored.sum()

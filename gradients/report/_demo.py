@@ -71,6 +71,12 @@ water_and_organic = ["pH", "organic_matter", "conductivity"]
 covariables = []                      # variables controlled for in every test
 # strata = "campaign"                 # permute within the classes of this column
 
+# How far apart sites are, for every spatial analysis: in-stream distances along the river.
+[geography]
+method = "network"                    # "auto", "geodesic", "euclidean" or "network"
+network = "{data_folder}/streams.gpkg"        # the river lines (GeoPackage, projected CRS)
+snap_tolerance = 50                   # metres: each site must lie this close to a line
+
 [analyses]
 ordination = "nmds"                   # "nmds" or "pcoa"
 dimensions = 2
@@ -97,7 +103,7 @@ def init_project(folder: str | Path) -> Path:
                          "new folder for the template project.")
     data = folder / "data"
     data.mkdir(parents=True, exist_ok=True)
-    for name in ("community.csv", "environment.csv", "locations.gpkg"):
+    for name in ("community.csv", "environment.csv", "locations.gpkg", "streams.gpkg"):
         shutil.copyfile(DEMO_DIR / name, data / name)
     project = folder / "project.toml"
     project.write_text(project_template(), encoding="utf-8")
@@ -177,6 +183,7 @@ def run_demo(out: str | Path, *, force: bool = False, n_resamples: int = DEMO_PE
     truth = simulate_survey(rng=DEFAULT_SEED)
     inputs = {name.split(".")[0]: DEMO_DIR / name
               for name in ("community.csv", "environment.csv", "locations.gpkg")}
+    inputs["network"] = DEMO_DIR / "streams.gpkg"
     settings = {**project.settings, **(overrides or {})}
     outcome = analyse(survey, settings=settings, hypotheses=project.hypotheses,
                       inputs=inputs, demo=truth)

@@ -20,6 +20,7 @@ from .._errors import InputError, format_items
 __all__ = [
     "COMMUNITY_TRANSFORMS",
     "DISSIMILARITIES",
+    "GEOGRAPHY_METHODS",
     "ORDINATIONS",
     "SCHEMA",
     "Key",
@@ -37,18 +38,21 @@ ORDINATIONS = ("nmds", "pcoa")
 CENSORED = ("error", "half-limit", "limit", "zero", "ros")
 MISSING = ("error", "drop-sites", "drop-variables")
 UNMATCHED = ("error", "keep-shared")
+#: How the distance between sites is measured (the methods of ``geographic_distance``).
+GEOGRAPHY_METHODS = ("auto", "geodesic", "euclidean", "network")
 
 
 @dataclass(frozen=True)
 class Key:
     """One key of the project file: its type, default, allowed values and meaning."""
 
-    kind: str  # "str", "path", "int", "bool", "names", "choice", "compositions"
+    kind: str  # "str", "path", "int", "float", "number", "bool", "names", "choice",
+    # "compositions"
     default: Any = None
     help: str = ""
     choices: tuple[str, ...] = ()
     required: bool = False
-    minimum: int | None = None
+    minimum: float | None = None
 
 
 SCHEMA: dict[str, dict[str, Key]] = {
@@ -103,6 +107,19 @@ SCHEMA: dict[str, dict[str, Key]] = {
         "strata": Key("str", None, "A categorical column: permutations stay within its classes "
                       "(e.g. catchment or survey campaign)."),
     },
+    "geography": {
+        "method": Key("choice", "auto", "How the distance between sites is measured, for every "
+                      "spatial analysis: \"geodesic\" (on the ellipsoid), \"euclidean\" "
+                      "(straight lines in a projected CRS), \"network\" (in-stream, along "
+                      "`network`); \"auto\": network if `network` is given, else geodesic for "
+                      "longitude/latitude and euclidean for projected coordinates.",
+                      choices=GEOGRAPHY_METHODS),
+        "network": Key("path", None, "The river (channel) network for in-stream distances: a "
+                       "GeoPackage (or GeoJSON, Shapefile) of lines in a projected CRS."),
+        "snap_tolerance": Key("number", 100.0, "In-stream distances: the largest distance, in "
+                              "metres, from a site to the nearest line of the network.",
+                              minimum=0),
+    },
     "analyses": {
         "ordination": Key("choice", "nmds", "Ordination of the community dissimilarities.",
                           choices=ORDINATIONS),
@@ -122,7 +139,15 @@ SCHEMA: dict[str, dict[str, Key]] = {
         "correlogram": Key("bool", True, "Mantel correlogram of community against geographic "
                            "distance classes (needs locations)."),
         "distance_decay": Key("bool", True, "Distance decay of similarity (needs locations)."),
+        "partition": Key("bool", True, "Space and environment: variation partitioning of the "
+                         "community between the hypotheses' variables and spatial eigenvectors "
+                         "(needs locations)."),
         "verdicts": Key("bool", True, "The decision table with one verdict per hypothesis."),
+    },
+    "partition": {
+        "selection_level": Key("float", 0.05, "Significance level of the forward selection of "
+                               "spatial eigenvectors and environmental variables (each step and "
+                               "the global test)."),
     },
     "permutations": {
         "count": Key("int", 999, "Number of permutations for every test.", minimum=1),
@@ -209,6 +234,14 @@ def _check_value(section: str, name: str, key: Key, value: Any, base: Path) -> A
         if key.minimum is not None and value < key.minimum:
             raise InputError(f"{where} must be at least {key.minimum}; got {value}.")
         return value
+    if key.kind == "number":
+        if not isinstance(value, numbers.Real) or isinstance(value, bool) or not (
+                value == value and abs(value) != float("inf")):
+            raise InputError(f"{where} must be a number (no quotes), e.g. {name} = 50; got "
+                             f"{value!r}.")
+        if key.minimum is not None and value < key.minimum:
+            raise InputError(f"{where} must be at least {key.minimum:g}; got {value}.")
+        return float(value)
     if key.kind == "float":
         if not isinstance(value, numbers.Real) or isinstance(value, bool) or not 0 < value < 1:
             raise InputError(f"{where} must be a number between 0 and 1, e.g. 0.05; got "
@@ -273,7 +306,8 @@ def project_from_dict(data: dict[str, Any], *, base: Path | None = None,
                 settings[full] = (base / key.default).resolve()
             else:
                 settings[full] = key.default
-    for full in ("inputs.community", "inputs.environment", "inputs.locations"):
+    for full in ("inputs.community", "inputs.environment", "inputs.locations",
+                 "geography.network"):
         path = settings.get(full)
         if path is not None and not Path(path).is_file():
             raise InputError(
@@ -286,7 +320,25 @@ def project_from_dict(data: dict[str, Any], *, base: Path | None = None,
         raise InputError("`inputs.coordinates` must name two columns, x then y (or longitude "
                          f"then latitude); got {list(coords)}.")
     _cross_check(settings, hypotheses)
+    _check_geography(settings)
     return Project(settings, hypotheses, source)
+
+
+def _check_geography(settings: dict[str, Any]) -> None:
+    """The [geography] keys agree with each other and with the inputs."""
+    method, network = settings["geography.method"], settings["geography.network"]
+    if method == "network" and network is None:
+        raise InputError('`geography.method = "network"` measures in-stream distances along a '
+                         "river network, but `geography.network` is not given: add network = "
+                         '"streams.gpkg" (a GeoPackage of lines) to [geography], or choose '
+                         'method = "geodesic".')
+    if network is not None and method in ("geodesic", "euclidean"):
+        raise InputError(f"`geography.network` is given but `geography.method` is {method!r}: "
+                         'in-stream distances need method = "network" (or "auto"); remove '
+                         "`network` to use straight-line distances.")
+    if network is not None and settings["inputs.locations"] is None:
+        raise InputError("`geography.network` is given but `inputs.locations` is not: "
+                         "in-stream distances need the site locations.")
 
 
 def _cross_check(settings: dict[str, Any], hypotheses: dict[str, tuple[str, ...]]) -> None:

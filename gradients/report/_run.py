@@ -273,7 +273,7 @@ def run_project(project: str | Path | Project, *, out: str | Path | None = None,
     check_hypotheses(project, survey)
     s = project.settings
     inputs = {"community": s["inputs.community"], "environment": s["inputs.environment"],
-              "locations": s["inputs.locations"]}
+              "locations": s["inputs.locations"], "network": s["geography.network"]}
     if project.source is not None:
         inputs["project"] = project.source
     outcome = analyse(survey, settings=s, hypotheses=project.hypotheses, inputs=inputs)

@@ -34,6 +34,25 @@ Verdicts, the first that applies:
    below the threshold.
 5. **not supported**: no test is significant (or none was run).
 
+The raw-data answer joins them in one direction only. Where the report has a "Space and
+environment" section, each hypothesis also has a *pure fraction*: the adjusted R2 of its
+variables given the other hypotheses, the covariables and the selected spatial eigenvectors,
+tested by permutation (its p-value Holm-adjusted across hypotheses). It counts as evidence
+when it is positive, significant and at least :data:`NEGLIGIBLE_FRACTION` (0.02):
+
+6. a verdict of **not supported** or **significant but negligible** from the tests above
+   becomes **partly supported** when the pure fraction counts as evidence;
+7. it never lowers a verdict. Spatial eigenvectors selected on the same community describe a
+   spatially structured gradient as well as its own variables do, so the pure fraction of a
+   real driver can vanish into the fraction it shares with space; a pure fraction that does
+   not count means "not separable from space on the raw data", which the report gives as a
+   caveat, not as evidence against the hypothesis. Nor does it lift the verdict "associated,
+   but not separable from spatial structure": its permutation test, like the plain Mantel
+   test, assumes exchangeable sites.
+
+The 0.02 threshold is Cohen's (1988) small effect size for a set of predictors in multiple
+regression (f2 = 0.02), read here as a share of the variation: this report's own rule.
+
 References
 ----------
 Cohen, J. (1988). Statistical power analysis for the behavioral sciences, 2nd ed. Erlbaum.
@@ -49,6 +68,7 @@ from dataclasses import dataclass
 __all__ = [
     "NEGLIGIBLE",
     "NEGLIGIBLE_EFFECT",
+    "NEGLIGIBLE_FRACTION",
     "NOT_SEPARABLE",
     "NOT_SUPPORTED",
     "PARTLY",
@@ -56,6 +76,7 @@ __all__ = [
     "VERDICTS",
     "Evidence",
     "decide_verdict",
+    "fraction_counts",
 ]
 
 SUPPORTED = "supported"
@@ -69,6 +90,9 @@ VERDICTS = (SUPPORTED, PARTLY, NOT_SEPARABLE, NEGLIGIBLE, NOT_SUPPORTED)
 #: Effects (Mantel r, standardised regression coefficient) below this are negligible: Cohen's
 #: (1988) small correlation, applied to these statistics as this report's own rule.
 NEGLIGIBLE_EFFECT = 0.1
+#: Pure fractions (adjusted R2) below this are negligible: Cohen's (1988) small effect size for
+#: a set of predictors (f2 = 0.02), read as a share of the variation: this report's own rule.
+NEGLIGIBLE_FRACTION = 0.02
 
 
 def _number(value: float | None) -> float:
@@ -92,6 +116,10 @@ class Evidence:
     regression_coefficient, regression_pvalue : float or None
         Standardised coefficient of the hypothesis in the regression on distance matrices,
         and its permutation p-value.
+    pure_fraction, pure_fraction_pvalue : float or None
+        Adjusted R2 of the hypothesis' variables given the other hypotheses, the covariables
+        and the selected spatial eigenvectors (raw data), and its permutation p-value,
+        Holm-adjusted across hypotheses.
     """
 
     mantel_r: float | None = None
@@ -100,10 +128,20 @@ class Evidence:
     spatially_structured: bool = False
     regression_coefficient: float | None = None
     regression_pvalue: float | None = None
+    pure_fraction: float | None = None
+    pure_fraction_pvalue: float | None = None
+
+
+def fraction_counts(evidence: Evidence, *, level: float = 0.05,
+                    negligible: float = NEGLIGIBLE_FRACTION) -> bool:
+    """Whether the pure fraction is evidence: positive, significant and not negligible."""
+    f, p = _number(evidence.pure_fraction), _number(evidence.pure_fraction_pvalue)
+    return not (math.isnan(f) or math.isnan(p)) and f > 0 and p <= level and f >= negligible
 
 
 def decide_verdict(evidence: Evidence, *, level: float = 0.05,
-                   negligible: float = NEGLIGIBLE_EFFECT) -> str:
+                   negligible: float = NEGLIGIBLE_EFFECT,
+                   negligible_fraction: float = NEGLIGIBLE_FRACTION) -> str:
     """The verdict for one hypothesis (one of :data:`VERDICTS`); the rule is in the module notes.
 
     Parameters
@@ -113,7 +151,18 @@ def decide_verdict(evidence: Evidence, *, level: float = 0.05,
         Significance level (the project's ``output.level``).
     negligible : float, default NEGLIGIBLE_EFFECT
         Significant effects below this are negligible.
+    negligible_fraction : float, default NEGLIGIBLE_FRACTION
+        Pure fractions below this are negligible.
     """
+    verdict = _matrix_verdict(evidence, level, negligible)
+    if verdict in (NOT_SUPPORTED, NEGLIGIBLE) and fraction_counts(
+            evidence, level=level, negligible=negligible_fraction):
+        return PARTLY
+    return verdict
+
+
+def _matrix_verdict(evidence: Evidence, level: float, negligible: float) -> str:
+    """Rules 1-5: the verdict of the Mantel-type test and the regression."""
     r, p, p_spatial = (_number(evidence.mantel_r), _number(evidence.mantel_pvalue),
                        _number(evidence.mantel_pvalue_spatial))
     b, p_b = _number(evidence.regression_coefficient), _number(evidence.regression_pvalue)

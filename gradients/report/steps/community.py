@@ -3,10 +3,14 @@
 The community step computes the community dissimilarities (after the transform the project
 asks for); the environment step puts each hypothesis' variables in analysis units (log10,
 isometric log-ratios of compositions) and computes one environmental distance matrix per
-hypothesis and for the covariables; the geography step computes geographic distances in km.
+hypothesis and for the covariables; the geography step computes the distance between sites in
+km that the project's ``[geography]`` keys ask for (geodesic, straight-line or in-stream; see
+:mod:`gradients.report._geography`), the one matrix every spatial analysis reads.
 """
 
 from __future__ import annotations
+
+from pathlib import Path
 
 import numpy as np
 import pandas as pd
@@ -140,19 +144,22 @@ def environment_step(ctx: Context) -> None:
 
 
 def geography_step(ctx: Context) -> None:
-    from ...distance import geographic_distance
+    """The distance between sites, in km: the one matrix every spatial analysis uses."""
+    from ...distance import DistanceMatrix
+    from .._geography import site_distances
 
     if ctx.survey.locations is None:
         return
-    from ...distance import DistanceMatrix
-
-    g = geographic_distance(ctx.survey.locations)
+    found = site_distances(ctx.settings, ctx.survey.locations)
+    g = found.metres
     if not np.any(g.condensed > 0):
         raise Skip("every site has the same location, so all distances between sites are "
                    "zero: space was left out of every analysis. Check the coordinates in "
                    "`[inputs] locations` (or the coordinate columns).")
     km = DistanceMatrix(g.condensed / 1000.0, g.labels, metric=g.metric, validate=False)
     ctx.results["geography"] = km
-    ctx.methods.append(
-        f"Geographic distances between sites were {g.metric} distances in kilometres"
-        f"{' on the WGS84 ellipsoid (Karney 2013)' if g.metric == 'geodesic' else ''}.")
+    ctx.results["site_points"] = found.locations
+    if found.network is not None:
+        ctx.results["network"] = found.network
+    path = ctx.settings.get("geography.network")
+    ctx.methods.append(found.sentence(Path(path).name if path is not None else None))

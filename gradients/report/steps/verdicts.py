@@ -8,6 +8,7 @@ lists the caveats the report checks for.
 
 from __future__ import annotations
 
+from dataclasses import replace
 from typing import Any
 
 import numpy as np
@@ -17,7 +18,16 @@ from ...permutation import adjust_pvalues
 from .._model import Section
 from .._pipeline import Context
 from ._common import _add_figure, _fmt_p, _predictors
-from ._rule import NEGLIGIBLE_EFFECT, Evidence, decide_verdict
+from ._rule import (
+    NEGLIGIBLE_EFFECT,
+    NEGLIGIBLE_FRACTION,
+    NOT_SEPARABLE,
+    PARTLY,
+    SUPPORTED,
+    Evidence,
+    decide_verdict,
+    fraction_counts,
+)
 
 __all__ = ["rule_text", "verdicts_step"]
 
@@ -43,8 +53,30 @@ def _predictor_correlations(preds: dict[str, object]) -> pd.DataFrame:
     return pd.DataFrame(r, index=pd.Index(names, name="predictor"), columns=names)
 
 
-def rule_text(level: float, test: str = "partial Mantel") -> str:
-    """The verdict rule in the report's words (``test``: the Mantel-type test used)."""
+def rule_text(level: float, test: str = "partial Mantel", fractions: bool = False) -> str:
+    """The verdict rule in the report's words (``test``: the Mantel-type test used;
+    ``fractions``: the table has the raw-data pure fractions)."""
+    return _matrix_rule(level, test) + (_fraction_rule(level) if fractions else "")
+
+
+def _fraction_rule(level: float) -> str:
+    return (
+        " The pure fraction from the raw data (section Space and environment: the adjusted R2 "
+        "of the hypothesis' variables given the other hypotheses, the covariables and the "
+        "selected spatial eigenvectors; pure_fraction, tested by permutation, its p-value "
+        "Holm-adjusted across hypotheses in pure_fraction_pvalue_holm) counts as evidence when "
+        f"it is positive, at least {NEGLIGIBLE_FRACTION} (Cohen's 1988 small effect size for "
+        "a set of predictors, f2 = 0.02, read as a share of the variation: this report's own "
+        f"rule) and its adjusted p-value at most {level}. It can only add support: it turns "
+        "'not supported' or 'significant but negligible' into 'partly supported', and never "
+        "lowers a verdict, because spatial eigenvectors selected on the same community "
+        "describe a spatially structured gradient as well as its own variables do (the effect "
+        "of a real driver can sit in the fraction it shares with space); a pure fraction that "
+        "does not count is given as a caveat. It does not lift 'associated, but not separable "
+        "from spatial structure'.")
+
+
+def _matrix_rule(level: float, test: str) -> str:
     return (
         f"How the verdicts are decided. A test counts as significant when its effect is "
         f"positive and its p-value at most {level}: the {test} test by its p-value "
@@ -98,6 +130,7 @@ def verdicts_step(ctx: Context) -> None:
         first = cg.table[cg.table["tested"].astype(bool)].head(1)
         if len(first) and float(first["pvalue_adjusted"].iloc[0]) <= level:
             spatial.append("nearby sites are more alike than average (first correlogram class)")
+    fractions = (ctx.results.get("partition") or {}).get("hypotheses")
     rows = []
     for name in hyp:
         row: dict[str, object] = {"hypothesis": name,
@@ -113,6 +146,9 @@ def verdicts_step(ctx: Context) -> None:
             if _both_structured(test) is not None:
                 row["spatially_structured"] = _both_structured(test)
             row["controls"] = ", ".join(test.controls) if prefix == "partial_mantel" else "none"
+        if fractions is not None and name in fractions.index:
+            row.update({"pure_fraction": fractions.loc[name, "pure_fraction"],
+                        "pure_fraction_pvalue": fractions.loc[name, "pvalue"]})
         if reg is not None and name in reg.table.index:
             t = reg.table.loc[name]
             row.update({"regression_std_coefficient": t["std_coefficient"],
@@ -131,6 +167,13 @@ def verdicts_step(ctx: Context) -> None:
     test_words = "partial Mantel" if kind == "partial_mantel" else "Mantel"
     if pcol in table:
         table.insert(table.columns.get_loc(pcol) + 1, pcol + "_holm", _holm(table[pcol]))
+    has_fraction = "pure_fraction_pvalue" in table
+    if has_fraction:
+        known = table["pure_fraction_pvalue"].notna()
+        holm = pd.Series(np.nan, index=table.index)
+        holm[known] = _holm(table.loc[known, "pure_fraction_pvalue"])
+        table.insert(table.columns.get_loc("pure_fraction_pvalue") + 1,
+                     "pure_fraction_pvalue_holm", holm)
     verdicts, caveats, summary = [], [], []
     for name, row in table.iterrows():
         structured = row.get("spatially_structured")
@@ -139,9 +182,26 @@ def verdicts_step(ctx: Context) -> None:
             mantel_pvalue_spatial=row.get(scol),
             spatially_structured=bool(structured) if pd.notna(structured) else False,
             regression_coefficient=row.get("regression_std_coefficient"),
-            regression_pvalue=row.get("regression_pvalue"))
+            regression_pvalue=row.get("regression_pvalue"),
+            pure_fraction=row.get("pure_fraction"),
+            pure_fraction_pvalue=row.get("pure_fraction_pvalue_holm"))
         verdict = decide_verdict(evidence, level=level)
         notes = []
+        pure, pure_p = row.get("pure_fraction"), row.get("pure_fraction_pvalue_holm")
+        if has_fraction and pd.notna(pure) and pd.notna(pure_p):
+            counts = fraction_counts(evidence, level=level)
+            if verdict in (SUPPORTED, PARTLY) and not counts:
+                notes.append(f"on the raw data its pure fraction ({pure:.3f}, Holm-adjusted "
+                             f"{_fmt_p(pure_p)}) does not count given the other hypotheses and "
+                             "the spatial eigenvectors: there it cannot be told apart from "
+                             "spatial structure (see Space and environment)")
+            elif verdict == NOT_SEPARABLE and counts:
+                notes.append(f"its pure fraction on the raw data ({pure:.3f}, Holm-adjusted "
+                             f"{_fmt_p(pure_p)}) counts, but does not lift this verdict")
+            elif verdict == PARTLY and counts and decide_verdict(
+                    replace(evidence, pure_fraction=None), level=level) != PARTLY:
+                notes.append(f"partly supported by its pure fraction on the raw data "
+                             f"({pure:.3f}, Holm-adjusted {_fmt_p(pure_p)}) alone")
         sp = row.get(scol)
         if sp is not None and pd.notna(sp) and sp > level and row.get(pcol, 1) <= level:
             notes.append(f"not significant against the spatially constrained null ({_fmt_p(sp)})")
@@ -178,6 +238,8 @@ def verdicts_step(ctx: Context) -> None:
         if "regression_pvalue" in table and pd.notna(row.get("regression_pvalue")):
             bits.append(f"regression coefficient {row['regression_std_coefficient']:.2f}, "
                         f"{_fmt_p(row['regression_pvalue'])}")
+        if has_fraction and pd.notna(pure) and pd.notna(pure_p):
+            bits.append(f"pure fraction {pure:.3f}, {_fmt_p(pure_p)}")
         summary.append(f"{name}: {verdict} ({'; '.join(bits)}).")
     table.insert(0, "verdict", verdicts)
     table["caveats"] = caveats
@@ -189,15 +251,16 @@ def verdicts_step(ctx: Context) -> None:
         "others and for space. Read the verdicts with their caveats: they describe association "
         "in this survey, not cause, and they are screening evidence for a professional "
         "judgement.")
-    sec.paragraphs.append(rule_text(level, test_words))
+    sec.paragraphs.append(rule_text(level, test_words, fractions=has_fraction))
     sec.tables["hypothesis_verdicts"] = table
     sec.tables["predictor_correlations"] = corr
     sec.shown += ["hypothesis_verdicts", "predictor_correlations"]
     sec.display["hypothesis_verdicts"] = [
         "verdict", "partial_mantel_r", "partial_mantel_pvalue_holm",
         "partial_mantel_pvalue_spatial", "mantel_r", "mantel_pvalue_holm",
-        "mantel_pvalue_spatial", "spatially_structured", "regression_std_coefficient",
-        "regression_pvalue", "best_vector", "vector_r2"]
+        "mantel_pvalue_spatial", "spatially_structured", "pure_fraction",
+        "pure_fraction_pvalue_holm", "regression_std_coefficient", "regression_pvalue",
+        "best_vector", "vector_r2"]
     sec.notes.extend(f"{name}: {c}." for name, c in zip(table.index, caveats, strict=True)
                      if c != "none")
     if spatial:
@@ -227,4 +290,7 @@ def verdicts_step(ctx: Context) -> None:
         "where both matrices were spatially structured, the spatially constrained p-value "
         f"(not adjusted) had to be at most {level} as well, and significant effects below "
         f"{NEGLIGIBLE_EFFECT} were called negligible (Cohen's 1988 small correlation, used as "
-        "this report's own rule).")
+        "this report's own rule)."
+        + (" The pure fraction of each hypothesis on the raw data (Holm-adjusted across "
+           f"hypotheses) could only add support, when at least {NEGLIGIBLE_FRACTION} and "
+           "significant." if has_fraction else ""))
