@@ -16,7 +16,8 @@ Module order (a module imports only modules above it in this list, so there is n
 9. ``_policies``: missing and censored values, empty sites and taxa, constant columns.
 10. ``_assemble``: raw inputs through every check into the parts of a survey.
 11. ``_survey``: :class:`Survey` and :func:`read_survey`.
-12. ``_demo``: the simulated demo survey with its planted truth.
+12. ``_demo_network``: the demo basin's river network, built from the site positions.
+13. ``_demo``: the simulated demo survey with its planted truth.
 """
 
 from ._demo import DemoScenario, demo_survey, simulate_survey

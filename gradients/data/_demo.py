@@ -47,10 +47,6 @@ _HABITAT_P = {"tributary": (0.2, 0.3, 0.5), "floodplain": (0.5, 0.4, 0.1)}
 CENSOR_LIMIT_CD = 0.2
 SPATIAL_RANGE_KM = 3.0
 NB_SIZE = 1.5
-#: The projected CRS of the demo's river network (WGS 84 / UTM zone 32N, which holds the basin).
-NETWORK_CRS = "EPSG:32632"
-#: Floodplain sites farther than this (km) from the main stem's axis lie on a side channel.
-SIDE_CHANNEL_KM = 0.25
 
 
 class _NotGiven:
@@ -407,64 +403,14 @@ def simulate_survey(
         **{f"effect_{h}": habitat_effect[i] for i, h in enumerate(HABITATS)},
         "rare": rare,
     }, index=pd.Index(taxa, name="taxon", dtype=object))
-    network = _stream_network(x, y, reach)  # after every draw; draws nothing
+    from ._demo_network import stream_network
+
+    network = stream_network(  # after every draw; it draws nothing
+        x, y, reach, tributaries={REACHES[0]: FENNICK_SOURCE, REACHES[1]: ASHLOW_SOURCE},
+        floodplain=REACHES[2], confluence=CONFLUENCE, end=FLOODPLAIN_END,
+        origin=(ORIGIN_LON, ORIGIN_LAT), km_per_degree=_KM_PER_DEG)
     return DemoScenario(community, environment, locations, site_truth, taxon_truth, made_from,
                         network)
-
-
-# -- the river network (built after every draw of the survey; it draws nothing) ---------------
-def _lonlat(x: np.ndarray, y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Local km to lon/lat, rounded as the site locations are (so site vertices coincide)."""
-    lon = np.round(ORIGIN_LON + x / (_KM_PER_DEG * np.cos(np.radians(ORIGIN_LAT))), 6)
-    lat = np.round(ORIGIN_LAT + y / _KM_PER_DEG, 6)
-    return lon, lat
-
-
-def _stream_network(x: np.ndarray, y: np.ndarray, reach: np.ndarray) -> Any:
-    """The streams of the basin through the sites, in UTM zone 32N (see simulate_survey)."""
-    import geopandas as gpd
-    import shapely
-
-    lines: list[np.ndarray] = []
-    names: list[str] = []
-    kinds: list[str] = []
-    for name, source in ((REACHES[0], FENNICK_SOURCE), (REACHES[1], ASHLOW_SOURCE)):
-        on = reach == name  # sites are in downstream order within a reach
-        lines.append(np.vstack([source, np.column_stack([x[on], y[on]]), CONFLUENCE]))
-        names.append(name)
-        kinds.append("tributary")
-    on = reach == REACHES[2]
-    start, end = np.asarray(CONFLUENCE, float), np.asarray(FLOODPLAIN_END, float)
-    length = float(np.hypot(*(end - start)))
-    axis = (end - start) / length
-    normal = np.array([-axis[1], axis[0]])
-    rel = np.column_stack([x[on], y[on]]) - start
-    along, across = rel @ axis, rel @ normal
-    near = np.abs(across) <= SIDE_CHANNEL_KM
-    # the main stem: through the near sites in order along the axis; a far site's side
-    # channel joins it at the foot of the perpendicular, a vertex of the main stem
-    stem_s = np.r_[0.0, along[near], length]
-    stem_o = np.r_[0.0, across[near], 0.0]
-    order = np.argsort(stem_s, kind="stable")
-    stem_s, stem_o = stem_s[order], stem_o[order]
-    foot_o = np.interp(along[~near], stem_s, stem_o)
-    every_s = np.r_[stem_s, along[~near]]
-    every_o = np.r_[stem_o, foot_o]
-    order = np.argsort(every_s, kind="stable")
-    lines.append(start + np.outer(every_s[order], axis) + np.outer(every_o[order], normal))
-    names.append("River Corvanne")
-    kinds.append("main stem")
-    sites = np.column_stack([x[on], y[on]])[~near]
-    feet = start + np.outer(along[~near], axis) + np.outer(foot_o, normal)
-    for site, foot in zip(sites, feet, strict=True):
-        lines.append(np.vstack([site, foot]))
-        names.append("side channel")
-        kinds.append("side channel")
-    geometry = [shapely.linestrings(np.column_stack(_lonlat(line[:, 0], line[:, 1])))
-                for line in lines]
-    network = gpd.GeoDataFrame({"name": names, "kind": kinds}, geometry=geometry,
-                               crs="EPSG:4326")
-    return network.to_crs(NETWORK_CRS)
 
 
 def demo_survey(

@@ -28,6 +28,12 @@ def test_bundled_files_equal_regenerated(tmp_path, scenario):
                                   pd.DataFrame(bundled.drop(columns="geometry")))
     assert new.crs == bundled.crs and new.crs.to_epsg() == 4326
     assert new.geometry.geom_equals_exact(bundled.geometry, tolerance=0).all()
+    streams = gpd.read_file(tmp_path / "streams.gpkg")
+    bundled = gpd.read_file(DEMO_DIR / "streams.gpkg")
+    pd.testing.assert_frame_equal(pd.DataFrame(streams.drop(columns="geometry")),
+                                  pd.DataFrame(bundled.drop(columns="geometry")))
+    assert streams.crs == bundled.crs
+    assert streams.geometry.geom_equals_exact(bundled.geometry, tolerance=0).all()
     assert (DEMO_DIR / "README.md").exists()
 
 
@@ -168,3 +174,35 @@ def test_documented_strengths(scenario):
               "organic_matter": 0.02, "conductivity": 0.33}
     for key, value in quoted.items():
         assert got[key] == pytest.approx(value, abs=0.006), key
+
+
+def test_bundled_river_network_is_valid_and_carries_every_site(scenario):
+    # Outside readers: geopandas (through pyogrio) and sqlite3 (an OGC GeoPackage is an SQLite
+    # file with a gpkg_contents table); pyproj, through geopandas, puts the sites in its CRS.
+    import sqlite3
+
+    import shapely
+
+    from gradients import geographic_distance
+
+    streams = gpd.read_file(DEMO_DIR / "streams.gpkg")
+    with sqlite3.connect(DEMO_DIR / "streams.gpkg") as con:
+        assert con.execute("select table_name from gpkg_contents").fetchall() == [("streams",)]
+    assert streams.crs.to_epsg() == 32632 and not streams.crs.is_geographic  # UTM zone 32N
+    assert set(streams.geom_type) == {"LineString"}
+    assert set(streams["kind"]) == {"tributary", "main stem", "side channel"}
+    sites = demo_survey().locations.to_crs(streams.crs)
+    gap = sites.geometry.distance(shapely.union_all(streams.geometry.to_numpy()))
+    assert gap.max() < 1.0  # metres: every site lies on a line (the demo snaps within 50 m)
+    # the network is connected and holds every site; by the triangle inequality no path along
+    # it is shorter than the straight line between two sites (common practice: a check of
+    # any graph distance), and sites on different tributaries are much farther apart by water
+    river = geographic_distance(sites, method="network", network=streams, snap_tolerance=50)
+    line = geographic_distance(sites, method="euclidean")
+    assert np.all(river.condensed >= line.condensed - 1e-6)
+    assert river["FB01", "AW01"] > 1.5 * line["FB01", "AW01"]
+    # along one tributary, from its first site to its last, the water follows the sites
+    fb = sites.loc[[f"FB{i:02d}" for i in range(1, 21)]].geometry
+    along = sum(a.distance(b) for a, b in zip(fb.iloc[:-1], fb.iloc[1:], strict=True))
+    assert river["FB01", "FB20"] == pytest.approx(along, rel=1e-9)
+    assert scenario.network.geometry.geom_equals_exact(streams.geometry, tolerance=0).all()

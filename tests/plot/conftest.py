@@ -1,6 +1,7 @@
 """Shared fixtures: real result objects from the bundled demo survey, computed once.
 
-Permutation counts are small: the figures only read the results, whose numbers are checked by
+The demo's river network (``demo_network``) comes from the generator, which also writes the
+bundled ``streams.gpkg``. Permutation counts are small: the figures only read the results, whose numbers are checked by
 the analysis stages' own tests.
 """
 
@@ -37,9 +38,20 @@ def demo() -> SimpleNamespace:
         taxa=pcoa.taxon_scores(survey.community),
         correlogram=gradients.mantel_correlogram(d, geo, n_resamples=99, rng=1),
         decay=gradients.distance_decay(d, geo, rng=1),
+        parts=gradients.partition_variation(
+            d, numeric[["Cu", "Zn"]], numeric[["sand", "clay"]], names=["metals", "texture"],
+            n_resamples=99, rng=1),
+        eigenvectors=gradients.spatial_eigenvectors(geo),
         partial=gradients.partial_mantel(
             d,
             gradients.environmental_distance(numeric[["Cu", "Zn"]]),
             gradients.environmental_distance(numeric[["sand", "clay"]]),
             n_resamples=99, rng=1),
     )
+
+
+@pytest.fixture(scope="session")
+def demo_network():
+    """The demo's river lines (UTM zone 32N) and the site points in the same CRS."""
+    network = gradients.simulate_survey().network
+    return network, gradients.demo_survey().locations.to_crs(network.crs)

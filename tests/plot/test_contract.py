@@ -31,8 +31,6 @@ ROOT = Path(__file__).resolve().parents[2]
 RANKING = pd.DataFrame({"variable": ["Cu", "sand"], "r2": [0.5, 0.1], "pvalue": [0.001, 0.4]})
 CURVES = pd.DataFrame({"variable": ["Cu"] * 3 + ["sand"] * 3, "value": [0.0, 5, 10] * 2,
                        "turnover": [0.0, 0.4, 0.5, 0.0, 0.1, 0.2]})
-FRACTIONS = pd.DataFrame({"fraction": ["contamination only", "space only", "shared"],
-                          "r2_adjusted": [0.2, 0.1, 0.05]})
 
 
 def _calls(demo) -> dict[str, Callable[..., object]]:
@@ -50,13 +48,13 @@ def _calls(demo) -> dict[str, Callable[..., object]]:
         "distance_decay": lambda **kw: plot.distance_decay(demo.decay, **kw),
         "hypotheses": lambda **kw: plot.hypotheses({"metals": demo.partial}, **kw),
         "ranking": lambda **kw: plot.ranking(RANKING, **kw),
-        "partition": lambda **kw: plot.partition(FRACTIONS, **kw),
+        "partition": lambda **kw: plot.partition(demo.parts, **kw),
     }
 
 
 AXES_FUNCTIONS = sorted(_calls(None))
 #: Names of gradients.plot that are not drawing functions of one axes.
-OTHERS = {"legend", "house_style", "turnover_curves"}
+OTHERS = {"legend", "house_style", "turnover_curves", "spatial_eigenvector_map"}
 
 
 def test_every_public_name_is_covered_here():
@@ -121,6 +119,21 @@ def test_turnover_curves_returns_a_figure_or_draws_into_one(no_files):
         plot.turnover_curves(CURVES, fig="figure")
 
 
+def test_eigenvector_map_returns_a_figure_or_draws_into_one(demo, no_files):
+    fig = plot.spatial_eigenvector_map(demo.eigenvectors, demo.survey.locations)
+    assert isinstance(fig, Figure) and made_here(fig)
+    assert fig.get_layout_engine() is not None
+    given = Figure()
+    sub = given.subfigures(1, 2)[0]
+    out = plot.spatial_eigenvector_map(demo.eigenvectors, demo.survey.locations, fig=sub,
+                                       vectors=["space1", "space2"], ncols=1)
+    assert out is sub and isinstance(out, SubFigure)
+    assert len([a for a in given.axes if a.get_visible()]) == 2
+    assert not made_here(given)
+    with pytest.raises(InputError, match="`fig` must be a matplotlib Figure or SubFigure"):
+        plot.spatial_eigenvector_map(demo.eigenvectors, demo.survey.locations, fig="figure")
+
+
 @pytest.mark.parametrize("name", AXES_FUNCTIONS)
 def test_refuses_what_is_not_axes(name, demo):
     with pytest.raises(InputError, match="`ax` must be a matplotlib Axes; got str"):
@@ -144,6 +157,11 @@ def test_results_of_the_wrong_kind_are_named(demo):
         plot.distance_decay(demo.correlogram)
     with pytest.raises(InputError, match="has no `statistic` and `pvalue`"):
         plot.hypotheses({"metals": demo.pcoa})
+    with pytest.raises(InputError, match="`result` must be the result of partition_variation"):
+        plot.partition(demo.pcoa)
+    with pytest.raises(InputError, match="`eigenvectors` must be the result of "
+                                         "spatial_eigenvectors"):
+        plot.spatial_eigenvector_map(demo.parts, demo.survey.locations)
 
 
 def test_reachable_from_the_package():

@@ -491,7 +491,7 @@ def test_hypotheses_from_test_results(demo):
 
 
 # --------------------------------------------------------------------------------------------
-# turnover curves and partitions
+# turnover curves
 
 
 def test_turnover_panels_ordered_by_total():
@@ -511,23 +511,114 @@ def test_turnover_panels_ordered_by_total():
         plot.turnover_curves(curves.drop(columns="turnover"))
 
 
-def test_partition_bar_adds_to_one():
-    fractions = pd.DataFrame(
-        {
-            "fraction": [
-                "contamination only",
-                "space only",
-                "contamination & space",
-                "texture only",
-            ],
-            "r2_adjusted": [0.21, 0.09, 0.07, -0.01],
-        }
-    )
-    ax = plot.partition(fractions)
-    bars = [p for c in ax.containers if c.get_label() == "_gr:fractions" for p in c.patches]
-    widths = [p.get_width() for p in bars]
-    assert widths == pytest.approx([0.21, 0.09, 0.07, 1 - 0.37])  # residual = 1 - sum(>0)
-    assert bars[2].get_hatch()  # shared fraction hatched
-    assert "texture only" in ax.get_title(loc="right")  # negative fraction listed, not drawn
-    with pytest.raises(InputError, match=r"missing column.*'r2_adjusted'"):
-        plot.partition(fractions.drop(columns="r2_adjusted"))
+def _fractions(values: dict[str, float], names=("environment", "space")):
+    """A VariationPartitionResult with chosen adjusted fractions (only its table is drawn)."""
+    from gradients.partition import VariationPartitionResult
+
+    rows = []
+    for tables, v in values.items():
+        if tables == "":
+            rows.append({"fraction": "unexplained", "kind": "residual", "tables": "",
+                         "r2_adjusted": v, "testable": False, "pvalue": np.nan})
+            continue
+        alone = " & " not in tables
+        rows.append({"fraction": f"{tables} only" if alone else f"shared by {tables}",
+                     "kind": "individual", "tables": tables, "r2_adjusted": v,
+                     "testable": alone, "pvalue": 0.01 if alone else np.nan})
+    return VariationPartitionResult(table=pd.DataFrame(rows), names=tuple(names), n_sites=30,
+                                    n_resamples=99, total=1.0, exact=False, scheme="free")
+
+
+def _bars(ax) -> list:
+    return [p for c in ax.containers if c.get_label() == "_gr:fractions" for p in c.patches]
+
+
+def test_partition_bar_is_the_fractions_in_reading_order(demo):
+    # the result's own table is the oracle: environment only, shared, space only, unexplained
+    parts = _fractions({"space": 0.09, "environment & space": 0.07, "environment": 0.21,
+                        "": 0.63})
+    ax = plot.partition(parts)
+    bars = _bars(ax)
+    assert [p.get_width() for p in bars] == pytest.approx([0.21, 0.07, 0.09, 0.63])
+    assert [p.get_x() for p in bars] == pytest.approx([0.0, 0.21, 0.28, 0.37])
+    assert bars[1].get_hatch() and not bars[0].get_hatch()  # shared fraction hatched
+    assert to_rgba(bars[3].get_facecolor()) == to_rgba(S.HOLLOW)  # unexplained in white
+    printed = [t.get_text() for t in ax.texts]
+    assert printed == ["21.0 %", "7.0 %", "9.0 %", "63.0 %"]
+    labels = [t.get_text() for t in ax.figure.legends[0].get_texts()]
+    assert labels[0] == "environment only (21.0 %, p = 0.010)"  # testable: its p-value
+    assert labels[1] == "shared by environment & space (7.0 %)"
+    # a real partitioning draws its positive individual fractions and the residual
+    real = demo.parts.table
+    drawn = real[(real["kind"] != "combined") & (real["r2_adjusted"] > 0)]
+    assert sorted(p.get_width() for p in _bars(plot.partition(demo.parts))) == \
+        pytest.approx(sorted(drawn["r2_adjusted"]))
+
+
+def test_partition_lists_negative_fractions_and_prints_narrow_ones_above():
+    parts = _fractions({"environment": 0.30, "environment & space": -0.02, "space": 0.03,
+                        "": 0.69})
+    ax = plot.partition(parts)
+    assert [p.get_width() for p in _bars(ax)] == pytest.approx([0.30, 0.03, 0.69])
+    assert "shared by environment & space" in ax.get_title(loc="right")  # listed, not drawn
+    narrow = [t for t in ax.texts if t.get_text() == "3.0 %"]
+    assert len(narrow) == 1 and narrow[0].get_position()[1] > 0.25  # above the bar
+    with pytest.raises(InputError, match="`result` must be the result of partition_variation"):
+        plot.partition(parts.table)
+
+
+def test_partition_of_three_tables_keeps_the_first_two_side_by_side():
+    parts = _fractions({"environment": 0.2, "space": 0.1, "covariables": 0.05,
+                        "environment & space": 0.04, "environment & covariables": 0.03,
+                        "space & covariables": 0.02, "environment & space & covariables": 0.01,
+                        "": 0.55}, names=("environment", "space", "covariables"))
+    ax = plot.partition(parts)
+    assert [p.get_width() for p in _bars(ax)] == pytest.approx(
+        [0.2, 0.04, 0.1, 0.05, 0.03, 0.02, 0.01, 0.55])
+
+
+# --------------------------------------------------------------------------------------------
+# spatial eigenvector maps
+
+
+def test_eigenvector_map_marks_each_site_by_sign_and_size(demo, demo_network):
+    network, points = demo_network
+    sev = gradients.spatial_eigenvectors(gradients.geographic_distance(
+        points, method="network", network=network))
+    fig = plot.spatial_eigenvector_map(sev, points, vectors=["space2", "space1", "space3"],
+                                       network=network, distance_unit="m")
+    panels = [ax for ax in fig.axes if ax.get_visible()]
+    assert [ax.get_title(loc="left") for ax in panels] == ["space2", "space1", "space3"]
+    for ax, name in zip(panels, ["space2", "space1", "space3"], strict=True):
+        v = sev.vectors[name]
+        pos, neg = tagged(ax, "_gr:sites-positive"), tagged(ax, "_gr:sites-negative")
+        assert n_points(pos) == int((v >= 0).sum()) and n_points(neg) == int((v < 0).sum())
+        # marker area grows with the absolute value (the oracle: the vector itself)
+        sizes = np.r_[pos[0].get_sizes(), neg[0].get_sizes()]
+        order = np.r_[np.abs(v[v >= 0]), np.abs(v[v < 0])]
+        assert np.all(np.diff(sizes[np.argsort(order)]) >= -1e-12)
+        # the river lines, every part of the network, in km of the UTM zone
+        (lines,) = tagged(ax, "_gr:network")
+        assert len(lines.get_segments()) == len(network)
+        assert ax.get_xlabel() in ("Easting (km)", "")
+        assert "scale" in ax.get_title(loc="right") and " m" in ax.get_title(loc="right")
+    x = tagged(panels[0], "_gr:sites-positive")[0].get_offsets()[:, 0]
+    assert x.max() < 1000  # metres drawn as km
+    assert len(fig.axes) == 4  # 2 x 2 panels, the last hidden
+
+
+def test_eigenvector_map_in_longitude_latitude_and_its_checks(demo):
+    fig = plot.spatial_eigenvector_map(demo.eigenvectors, demo.survey.locations)
+    panels = [ax for ax in fig.axes if ax.get_visible()]
+    assert len(panels) == min(4, demo.eigenvectors.vectors.shape[1])
+    lat = float(demo.survey.locations.geometry.y.mean())
+    # a degree of longitude is cos(latitude) of a degree of latitude on the ground
+    assert panels[0].get_aspect() == pytest.approx(1 / np.cos(np.radians(lat)))
+    assert panels[0].get_ylabel() == "Latitude (°)"
+    with pytest.raises(InputError, match="`vectors` names 'space99'"):
+        plot.spatial_eigenvector_map(demo.eigenvectors, demo.survey.locations,
+                                     vectors=["space99"])
+    with pytest.raises(InputError, match=r"`locations` has no point for site\(s\) 'FB01'"):
+        plot.spatial_eigenvector_map(demo.eigenvectors, demo.survey.locations.drop("FB01"))
+    with pytest.raises(InputError, match="`locations` must be a GeoDataFrame"):
+        plot.spatial_eigenvector_map(demo.eigenvectors, demo.survey.environment)

@@ -41,7 +41,7 @@ def test_run_json_records_the_run(demo_report: Path, quick: dict) -> None:
     assert info["seed"] == 7 and info["permutations"] == quick["n_resamples"]
     for dep in ("gradients", "python", "numpy", "scipy", "pandas", "matplotlib", "geopandas"):
         assert info["software"][dep]
-    assert set(info["inputs"]) == {"community", "environment", "locations"}
+    assert set(info["inputs"]) == {"community", "environment", "locations", "network"}
     assert all(len(v["sha256"]) == 64 for v in info["inputs"].values())
     assert info["parameters"]["community.dissimilarity"] == "bray-curtis"
     assert info["parameters"]["analyses.starts"] == quick["overrides"]["analyses.starts"]

@@ -79,7 +79,7 @@ def test_switched_off_analyses_leave_no_trace(small, tmp_path: Path) -> None:
     survey = Survey(community, env, locations, censored="half-limit")
     off = {f"analyses.{k}": False for k in ("vectors", "factors", "surfaces", "mantel",
                                             "partial_mantel", "regression", "correlogram",
-                                            "distance_decay", "verdicts")}
+                                            "distance_decay", "partition", "verdicts")}
     outcome = analyse(survey, settings={**off, "permutations.count": 9,
                                         "analyses.starts": 2},
                       hypotheses={"metals": ("Cu",)})
