@@ -50,10 +50,15 @@ def planted_truth_step(ctx: Context) -> None:
             row["recovered"] = (found in (SUPPORTED, PARTLY)) == expected
         rows.append(row)
     geo = (ctx.results.get("mantel") or {}).get("geography")
+    found = [f"Mantel r = {geo.statistic:.2f}, {_fmt_p(geo.pvalue)}"] if geo is not None else []
+    parts = (ctx.results.get("partition") or {}).get("fractions")
+    if parts is not None:
+        found.append(f"space alone {100 * parts.fraction('space'):.1f} % of turnover on the "
+                     f"raw data, shared with the environment "
+                     f"{100 * parts.fraction('environment', 'space'):.1f} %")
     rows.append({"effect": "space", "planted": "weak",
                  "how": "two smooth random fields (range 3 km) shift every taxon a little",
-                 "found": (f"Mantel r = {geo.statistic:.2f}, {_fmt_p(geo.pvalue)}"
-                           if geo is not None else "not tested")})
+                 "found": "; ".join(found) or "not tested"})
     fac = ctx.results.get("factors")
     if fac is not None and "habitat" in fac.table.index:
         rows.append({"effect": "habitat", "planted": "weak",

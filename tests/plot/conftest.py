@@ -1,8 +1,8 @@
 """Shared fixtures: real result objects from the bundled demo survey, computed once.
 
 The demo's river network (``demo_network``) comes from the generator, which also writes the
-bundled ``streams.gpkg``. Permutation counts are small: the figures only read the results, whose numbers are checked by
-the analysis stages' own tests.
+bundled ``streams.gpkg``. Permutation counts are small: the figures only read the results,
+whose numbers are checked by the analysis stages' own tests.
 """
 
 from __future__ import annotations

@@ -108,6 +108,7 @@ def test_template_project_loads(tmp_path: Path) -> None:
     project = load_project(path)
     assert set(project.hypotheses) == {"contamination", "texture", "water_and_organic"}
     assert project["inputs.locations"].is_file()
+    assert project["geography.method"] == "network" and project["geography.network"].is_file()
     with pytest.raises(InputError, match="not an empty folder"):
         init_project(tmp_path / "proj")
 

@@ -2,8 +2,9 @@
 
 The rule is this report's own and is stated in `gradients/report/steps/_rule.py`, in the
 verdict section of every report and in docs/user-guide.md; these tests hold it to that
-statement. Its two outside ingredients: the negligible-effect threshold 0.1 is Cohen's (1988)
-"small" correlation (from memory), and the reason to ask for the spatially constrained p-value
+statement. Its outside ingredients: the negligible-effect threshold 0.1 is Cohen's (1988)
+"small" correlation and 0.02 for a pure fraction his "small" f2 for a set of predictors in
+multiple regression (both from memory), and the reason to ask for the spatially constrained p-value
 when both matrices are spatially structured is Guillot & Rousset (2013, Methods Ecol. Evol.
 4: 336-344): Mantel-type tests then reject a true null too often.
 """
@@ -18,6 +19,7 @@ import pytest
 from gradients.report.steps._rule import (
     NEGLIGIBLE,
     NEGLIGIBLE_EFFECT,
+    NEGLIGIBLE_FRACTION,
     NOT_SEPARABLE,
     NOT_SUPPORTED,
     PARTLY,
@@ -25,6 +27,7 @@ from gradients.report.steps._rule import (
     VERDICTS,
     Evidence,
     decide_verdict,
+    fraction_counts,
 )
 
 
@@ -130,3 +133,51 @@ def test_the_demo_numbers(name: str, numbers: tuple[float, ...], verdict: str) -
     e = Evidence(mantel_r=r, mantel_pvalue=p, mantel_pvalue_spatial=p_spatial,
                  spatially_structured=True, regression_coefficient=b, regression_pvalue=p_b)
     assert decide_verdict(e) == verdict
+
+
+def test_the_fraction_threshold_is_cohens_small_f2() -> None:
+    assert NEGLIGIBLE_FRACTION == 0.02  # Cohen (1988): f2 = 0.02 small (from memory)
+
+
+def test_a_pure_fraction_only_adds_support() -> None:
+    # rule 6: 'not supported' or 'significant but negligible' become 'partly supported' when
+    # the pure fraction counts (positive, significant, at least 0.02)
+    nothing = Evidence(mantel_r=0.05, mantel_pvalue=0.3, regression_coefficient=0.02,
+                       regression_pvalue=0.4)
+    assert decide_verdict(nothing) == NOT_SUPPORTED
+    assert decide_verdict(replace(nothing, pure_fraction=0.05, pure_fraction_pvalue=0.01)) \
+        == PARTLY
+    negligible = Evidence(mantel_r=0.05, mantel_pvalue=0.01)
+    assert decide_verdict(negligible) == NEGLIGIBLE
+    assert decide_verdict(replace(negligible, pure_fraction=0.05,
+                                  pure_fraction_pvalue=0.01)) == PARTLY
+    # the threshold and the level are inclusive, as for the matrix tests
+    edge = replace(nothing, pure_fraction=0.02, pure_fraction_pvalue=0.05)
+    assert fraction_counts(edge) and decide_verdict(edge) == PARTLY
+    for bad in ({"pure_fraction": 0.019, "pure_fraction_pvalue": 0.001},  # negligible
+                {"pure_fraction": 0.3, "pure_fraction_pvalue": 0.051},    # not significant
+                {"pure_fraction": -0.03, "pure_fraction_pvalue": 0.001},  # negative
+                {"pure_fraction": 0.3, "pure_fraction_pvalue": None},     # not tested
+                {"pure_fraction": math.nan, "pure_fraction_pvalue": 0.01}):
+        assert not fraction_counts(replace(nothing, **bad)), bad
+        assert decide_verdict(replace(nothing, **bad)) == NOT_SUPPORTED, bad
+    assert decide_verdict(replace(nothing, pure_fraction=0.05, pure_fraction_pvalue=0.01),
+                          negligible_fraction=0.1) == NOT_SUPPORTED
+
+
+def test_a_pure_fraction_never_lowers_a_verdict_nor_lifts_not_separable() -> None:
+    # rule 7: spatial eigenvectors selected on the same community can absorb a spatially
+    # structured driver, so a pure fraction that does not count lowers nothing
+    supported = Evidence(mantel_r=0.35, mantel_pvalue=0.003, regression_coefficient=0.31,
+                         regression_pvalue=0.001, pure_fraction=0.0003,
+                         pure_fraction_pvalue=0.9)
+    assert decide_verdict(supported) == SUPPORTED
+    partly = replace(supported, regression_pvalue=0.2)
+    assert decide_verdict(partly) == PARTLY
+    assert decide_verdict(replace(partly, pure_fraction=0.1, pure_fraction_pvalue=0.001)) \
+        == PARTLY
+    # its permutation test assumes exchangeable sites, like the plain Mantel test
+    separable = Evidence(mantel_r=0.3, mantel_pvalue=0.003, mantel_pvalue_spatial=0.2,
+                         spatially_structured=True, pure_fraction=0.1,
+                         pure_fraction_pvalue=0.001)
+    assert decide_verdict(separable) == NOT_SEPARABLE

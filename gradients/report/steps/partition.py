@@ -132,6 +132,26 @@ def _global_words(result: Any, what: str) -> str:
             f"{STOP_REASONS[result.stop_reason]}")
 
 
+def _chosen(result: Any, candidates: pd.DataFrame, what: str, notes: list[str]) -> pd.DataFrame:
+    """The selected columns; every candidate when the selection stopped at its first step on
+    the adjusted-R2 rule although the global model is significant.
+
+    That stop means the best single candidate already explains as much as all of them (the
+    others only cost degrees of freedom), not that nothing explains the community: the global
+    model, tested first and significant, is then the table used, and the note says so.
+    """
+    if result.selected or result.stop_reason not in ("r2", "both") or \
+            result.pvalue > result.alpha:
+        return result.subset(candidates)
+    first = result.table.iloc[0]
+    notes.append(f"The forward selection of the {what} stopped at its first step: "
+                 f"{first['variable']} alone has adjusted R2 {first['r2_adjusted']:.4g}, above "
+                 f"the {result.r2_adjusted:.4g} of all {candidates.shape[1]} together, which "
+                 "the double criterion does not allow. The global model being significant "
+                 f"({_fmt_p(result.pvalue)}), all {candidates.shape[1]} were kept.")
+    return candidates
+
+
 def partition_step(ctx: Context) -> None:
     from ...partition import dbrda, forward_select, partition_variation, spatial_eigenvectors
     from ...plot import partition as fractions_figure
@@ -168,7 +188,7 @@ def partition_step(ctx: Context) -> None:
                      "forward selection can hold no more.")
     space_sel = forward_select(d, candidates, covariables=cov, alpha=level, n_resamples=perms,
                                rng=ctx.rng("partition:space"), strata=strata)
-    space = space_sel.subset(candidates)
+    space = _chosen(space_sel, candidates, "spatial eigenvectors", notes)
 
     # -- environment: every hypothesis' variables, forward-selected together ------------------
     pooled, owner = _pooled(tables)
@@ -178,7 +198,7 @@ def partition_step(ctx: Context) -> None:
     except InputError as exc:
         raise Skip(f"the hypotheses' variables cannot be selected together: {exc} Name fewer "
                    "variables in [hypotheses] or `design.covariables`, or add sites.") from None
-    environment = env_sel.subset(pooled)
+    environment = _chosen(env_sel, pooled, "hypotheses' variables", notes)
 
     # -- the fractions --------------------------------------------------------------------------
     parts = None
@@ -217,7 +237,8 @@ def partition_step(ctx: Context) -> None:
                                 "environment": env_sel, "eigenvectors": sev,
                                 "hypotheses": by_hypothesis}
     _section_of(ctx, sev, space_sel, env_sel, owner, parts, by_hypothesis, notes, problems,
-                fractions_figure, spatial_eigenvector_map)
+                fractions_figure, spatial_eigenvector_map, list(space.columns),
+                list(environment.columns))
 
 
 def _summary(parts: Any) -> str:
@@ -239,14 +260,15 @@ def _summary(parts: Any) -> str:
 
 def _section_of(ctx: Context, sev: Any, space_sel: Any, env_sel: Any, owner: dict[str, str],
                 parts: Any, by_hypothesis: pd.DataFrame | None, notes: list[str],
-                problems: list[str], fractions_figure: Any, map_figure: Any) -> None:
+                problems: list[str], fractions_figure: Any, map_figure: Any,
+                space_used: list[str], env_used: list[str]) -> None:
     geo = ctx.results["geography"]
     metric = geo.metric or "geographic"
     level = ctx.settings["partition.selection_level"]
     sec = Section("partition", "Space and environment: how much of the turnover is "
                                "environment, space, or both")
     n_vec = sev.vectors.shape[1]
-    chosen_env = list(env_sel.selected)
+    chosen_env = env_used
     sec.paragraphs.append(
         "The matrix tests above work on distance matrices, and Mantel-type tests lose power "
         "and can mislead when space and environment are confounded (Legendre, Fortin & Borcard "
@@ -255,8 +277,8 @@ def _section_of(ctx: Context, sev: Any, space_sel: Any, env_sel: Any, owner: dic
         "Space is described by spatial "
         "eigenvectors (distance-based Moran's eigenvector maps; Dray, Legendre & Peres-Neto "
         f"2006) of the {metric} distances between sites: {n_vec} describe positive spatial "
-        f"autocorrelation, from the broadest pattern to the finest, and "
-        f"{len(space_sel.selected)} were forward-selected on the community. The environment is "
+        f"autocorrelation, from the broadest pattern to the finest, and {len(space_used)} "
+        "were forward-selected on the community (or kept, see the notes). The environment is "
         "the variables of every hypothesis in analysis units, forward-selected together: "
         f"{', '.join(f'{v} ({owner[v]})' for v in chosen_env) or 'none'}. Both selections "
         "use the double stopping criterion of Blanchet, Legendre & Borcard (2008) at "
@@ -273,19 +295,20 @@ def _section_of(ctx: Context, sev: Any, space_sel: Any, env_sel: Any, owner: dic
         sec.shown.append("partition_fractions")
         sec.display["partition_fractions"] = ["kind", "df", "r2_adjusted", "testable",
                                               "statistic", "pvalue"]
-    elif not space_sel.selected:
+    elif not space_used:
         sec.paragraphs.append(
             "No spatial eigenvector was selected: beyond the covariables, space explains no "
             "turnover these tests can detect, so there is nothing to share with the "
             "environment and no fractions were computed.")
-    else:
+    elif not env_used:
         sec.paragraphs.append(
             "No environmental variable was selected: the hypotheses' variables together "
             "explain no turnover these tests can detect, so no fractions were computed.")
+    controls = "nothing else"
     if by_hypothesis is not None:
         words = ((["the other hypotheses"] if len(ctx.hypotheses) > 1 else [])
                  + (["the covariables"] if ctx.settings["design.covariables"] else [])
-                 + (["the selected spatial eigenvectors"] if space_sel.selected else []))
+                 + (["the selected spatial eigenvectors"] if space_used else []))
         controls = (", ".join(words[:-1]) + " and " + words[-1] if len(words) > 1 else
                     words[0] if words else "nothing else")
         sec.paragraphs.append(
@@ -307,9 +330,9 @@ def _section_of(ctx: Context, sev: Any, space_sel: Any, env_sel: Any, owner: dic
         sec.tables["partition_selection"] = sel.set_index(["selection", "order"])
         sec.shown.append("partition_selection")
     vectors = sev.table.rename(columns={"scale": "scale_km"}).copy()
-    vectors["selected"] = [v in space_sel.selected for v in vectors.index]
+    vectors["selected"] = [v in space_used for v in vectors.index]
     sec.tables["spatial_eigenvectors"] = vectors
-    for name in space_sel.selected:
+    for name in space_used:
         ctx.site_columns[name] = sev.vectors[name]
     sec.notes.extend([
         "A shared fraction is turnover that the environment and space explain together, "
@@ -338,26 +361,28 @@ def _section_of(ctx: Context, sev: Any, space_sel: Any, env_sel: Any, owner: dic
                     "the environment explains alone, the part it shares with space (hatched: "
                     "it cannot be credited to either), the part space explains alone and the "
                     "unexplained rest (adjusted R2).", fractions_figure, parts)
-    shown = sorted(space_sel.selected, key=list(sev.vectors.columns).index)[:MAP_VECTORS]
+    shown = sorted(space_used, key=list(sev.vectors.columns).index)[:MAP_VECTORS]
     if shown:
         _add_figure(ctx, sec, "spatial_eigenvectors", "The broadest of the selected spatial "
                     "eigenvectors over the sites: circles of one colour form the patches of "
                     "the pattern each describes; the area of a circle is the size of the "
                     "value.", map_figure, sev, ctx.results["site_points"], vectors=shown,
                     network=ctx.results.get("network"), distance_unit="km")
-    ctx.methods.append(_methods(sev, space_sel, env_sel, parts, by_hypothesis, metric, level))
+    ctx.methods.append(_methods(sev, space_used, env_used, parts, by_hypothesis, metric, level,
+                                controls))
 
 
-def _methods(sev: Any, space_sel: Any, env_sel: Any, parts: Any,
-             by_hypothesis: pd.DataFrame | None, metric: str, level: float) -> str:
+def _methods(sev: Any, space_used: list[str], env_used: list[str], parts: Any,
+             by_hypothesis: pd.DataFrame | None, metric: str, level: float,
+             controls: str) -> str:
     out = (f"Space and environment were separated on the raw data: spatial eigenvectors "
            f"(distance-based Moran's eigenvector maps; Borcard & Legendre 2002; Dray, Legendre "
            f"& Peres-Neto 2006) of the {metric} distances between sites (threshold "
            f"{sev.threshold:.3g} km, the longest edge of a minimum spanning tree; "
            f"{sev.vectors.shape[1]} with positive Moran's I) and the hypotheses' variables were "
            "each forward-selected with the double stopping criterion (Blanchet, Legendre & "
-           f"Borcard 2008; alpha = {level}), giving {len(space_sel.selected)} eigenvectors and "
-           f"{format_items(env_sel.selected, quote=False) or 'no variable'}")
+           f"Borcard 2008; alpha = {level}), giving {len(space_used)} eigenvectors and "
+           f"{format_items(env_used, quote=False) or 'no variable'}")
     if parts is not None:
         t = parts.table.set_index("fraction")
         out += ("; variation partitioning (Borcard, Legendre & Drapeau 1992) by "
@@ -370,9 +395,8 @@ def _methods(sev: Any, space_sel: Any, env_sel: Any, parts: Any,
                 f"{parts.fraction('environment', 'space'):.3f} and unexplained "
                 f"{t.loc['unexplained', 'r2_adjusted']:.3f}")
     if by_hypothesis is not None:
-        out += ("; the pure fraction of each hypothesis, given the others, the covariables and "
-                "the selected eigenvectors, tested by permuting the residuals of the reduced "
-                "model, was " + "; ".join(
+        out += (f"; the pure fraction of each hypothesis, given {controls}, tested by "
+                "permuting the residuals of the reduced model, was " + "; ".join(
                     f"{h} {r.pure_fraction:.3f} ({_fmt_p(r.pvalue)})"
                     for h, r in by_hypothesis.iterrows()))
     return out + ". Tests of fractions built from selected variables are conditional on the " \
