@@ -122,18 +122,19 @@ def test_the_large_simulated_survey_is_not_called_supported() -> None:
 
 
 @pytest.mark.parametrize(("name", "numbers", "verdict"), [
-    # the demo (999 permutations, seed 1): partial Mantel r, Holm p, constrained p,
-    # regression coefficient and p, all matrices spatially structured
-    ("contamination", (0.3535, 0.003, 0.026, 0.3087, 0.001), SUPPORTED),
-    ("texture", (0.1392, 0.01, 0.001, 0.1378, 0.005), SUPPORTED),
-    ("water_and_organic", (0.0473, 0.204, 0.363, 0.0370, 0.331), NOT_SUPPORTED),
+    # the demo (999 permutations, seed 1, in-stream distances): partial Mantel r, Holm p,
+    # constrained p, regression coefficient and p, pure fraction and its Holm p; all matrices
+    # spatially structured
+    ("contamination", (0.3507, 0.003, 0.021, 0.3050, 0.001, 0.0003, 0.746), SUPPORTED),
+    ("texture", (0.2286, 0.003, 0.001, 0.2038, 0.001, 0.0020, 0.746), SUPPORTED),
+    ("water_and_organic", (0.0633, 0.109, 0.332, 0.0491, 0.171, 0.0063, 0.609), NOT_SUPPORTED),
 ])
 def test_the_demo_numbers(name: str, numbers: tuple[float, ...], verdict: str) -> None:
-    r, p, p_spatial, b, p_b = numbers
+    r, p, p_spatial, b, p_b, f, p_f = numbers
     e = Evidence(mantel_r=r, mantel_pvalue=p, mantel_pvalue_spatial=p_spatial,
-                 spatially_structured=True, regression_coefficient=b, regression_pvalue=p_b)
+                 spatially_structured=True, regression_coefficient=b, regression_pvalue=p_b,
+                 pure_fraction=f, pure_fraction_pvalue=p_f)
     assert decide_verdict(e) == verdict
-
 
 def test_the_fraction_threshold_is_cohens_small_f2() -> None:
     assert NEGLIGIBLE_FRACTION == 0.02  # Cohen (1988): f2 = 0.02 small (from memory)
