@@ -119,6 +119,18 @@ def test_the_large_simulated_survey_is_not_called_supported() -> None:
                        mantel_pvalue_spatial=0.001, spatially_structured=True,
                        regression_coefficient=0.165161880466, regression_pvalue=0.001)
     assert decide_verdict(contamination) == decide_verdict(texture) == SUPPORTED
+    # the same survey with its own river network (in-stream distances, as the template project
+    # now measures space) and the raw-data pure fractions (measured with this suite, 999
+    # permutations): water_and_organic partial Mantel r = 0.0835, Holm 0.003, constrained
+    # p = 0.408; regression 0.0580, p = 0.001; pure fraction 0.00063, Holm p = 0.014
+    # (significant, but far below 0.02)
+    water = Evidence(mantel_r=0.0835185421134, mantel_pvalue=0.003,
+                     mantel_pvalue_spatial=0.408, spatially_structured=True,
+                     regression_coefficient=0.0580179759289, regression_pvalue=0.001,
+                     pure_fraction=0.000631558605644, pure_fraction_pvalue=0.014)
+    assert decide_verdict(water) == NOT_SEPARABLE
+    assert not fraction_counts(water)
+    assert decide_verdict(replace(water, mantel_pvalue_spatial=None)) == NEGLIGIBLE
 
 
 @pytest.mark.parametrize(("name", "numbers", "verdict"), [

@@ -191,10 +191,14 @@ def verdicts_step(ctx: Context) -> None:
         if has_fraction and pd.notna(pure) and pd.notna(pure_p):
             counts = fraction_counts(evidence, level=level)
             if verdict in (SUPPORTED, PARTLY) and not counts:
+                small = pure > 0 and pure_p <= level
                 notes.append(f"on the raw data its pure fraction ({pure:.3f}, Holm-adjusted "
-                             f"{_fmt_p(pure_p)}) does not count given the other hypotheses and "
-                             "the spatial eigenvectors: there it cannot be told apart from "
-                             "spatial structure (see Space and environment)")
+                             f"{_fmt_p(pure_p)}) "
+                             + (f"is significant but below {NEGLIGIBLE_FRACTION}" if small
+                                else "is not significant")
+                             + " given the other hypotheses and the spatial eigenvectors: "
+                             "there its effect can hardly be told apart from spatial structure "
+                             "(see Space and environment)")
             elif verdict == NOT_SEPARABLE and counts:
                 notes.append(f"its pure fraction on the raw data ({pure:.3f}, Holm-adjusted "
                              f"{_fmt_p(pure_p)}) counts, but does not lift this verdict")
