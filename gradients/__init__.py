@@ -13,9 +13,9 @@ stages before it, and the analysis stages in braces never import each other::
 ``ordination`` gives site scores (PCoA, NMDS, PCA); ``permutation`` is the one engine behind
 every permutation test; ``fitting`` puts environmental variables onto ordination space;
 ``matrix`` holds the Mantel family; ``partition`` separates space from environment on the raw
-data (dbRDA, spatial eigenvectors, variation partitioning); ``plot`` draws figures from result objects; ``report`` runs
-a project and writes its folder. ``gradients.cli`` parses the command line and calls
-``report``.
+data (dbRDA, spatial eigenvectors, variation partitioning); ``plot`` draws figures from result
+objects; ``report`` runs a project and writes its folder. ``gradients.cli`` parses the command
+line and calls ``report``.
 """
 
 from __future__ import annotations
