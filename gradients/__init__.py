@@ -33,6 +33,7 @@ _EXPORTS: dict[str, str] = {
     "demo_survey": "data",
     "simulate_survey": "data",
     "Decision": "data",
+    "texture_class": "data",
     # distance
     "DistanceMatrix": "distance",
     "dissimilarity": "distance",

@@ -51,6 +51,8 @@ def _calls(demo) -> dict[str, Callable[..., object]]:
         "hypotheses": lambda **kw: plot.hypotheses({"metals": demo.partial}, **kw),
         "ranking": lambda **kw: plot.ranking(RANKING, **kw),
         "partition": lambda **kw: plot.partition(FRACTIONS, **kw),
+        "texture_triangle": lambda **kw: plot.texture_triangle(
+            demo.survey.environment if demo else None, **kw),
     }
 
 
