@@ -9,17 +9,18 @@ Module order (a module imports only modules above it in this list, so there is n
 1. ``_log``: :class:`Decision`, one record of what was done to the input.
 2. ``_cells``: every cell read as a number, a missing value, a censored value or text.
 3. ``_censored``: the ``censored=`` policies and robust ROS imputation.
-4. ``_compositions``: the one rule for compositions (parts sum to their total, or renormalise).
-5. ``_texture``: USDA soil texture classes from sand, silt and clay.
-6. ``_files``: files read into raw tables of cells (encodings, delimiters, sheets, layers).
-7. ``_options``: the keyword options of :class:`Survey`, checked once.
-8. ``_sites``: site matching: site IDs as labels, tables indexed by them, aligned on one index.
-9. ``_tables``: parsing the community and environment tables.
-10. ``_locations``: locations and CRS.
-11. ``_policies``: missing and censored values, empty sites and taxa, constant columns.
-12. ``_assemble``: raw inputs through every check into the parts of a survey.
-13. ``_survey``: :class:`Survey` and :func:`read_survey`.
-14. ``_demo``: the simulated demo survey with its planted truth.
+4. ``_units``: units of environmental columns (pint), one quantity per column, conversion.
+5. ``_compositions``: the one rule for compositions (parts sum to their total, or renormalise).
+6. ``_texture``: USDA soil texture classes from sand, silt and clay.
+7. ``_files``: files read into raw tables of cells (encodings, delimiters, sheets, layers).
+8. ``_options``: the keyword options of :class:`Survey`, checked once.
+9. ``_sites``: site matching: site IDs as labels, tables indexed by them, aligned on one index.
+10. ``_tables``: parsing the community and environment tables.
+11. ``_locations``: locations and CRS.
+12. ``_policies``: missing and censored values, empty sites and taxa, constant columns.
+13. ``_assemble``: raw inputs through every check into the parts of a survey.
+14. ``_survey``: :class:`Survey` and :func:`read_survey`.
+15. ``_demo``: the simulated demo survey with its planted truth.
 """
 
 from ._demo import DemoScenario, demo_survey, simulate_survey

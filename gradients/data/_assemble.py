@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import os
 from collections.abc import Mapping
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Any
 
 import pandas as pd
@@ -27,7 +27,7 @@ from ._policies import (
     apply_missing,
 )
 from ._sites import MIN_SITES, align_sites, site_tables
-from ._tables import parse_community, parse_environment
+from ._tables import apply_units, parse_community, parse_environment, split_units_row
 
 __all__ = ["Parts", "build_parts", "raw_table", "same_table"]
 
@@ -43,10 +43,14 @@ class Parts:
     limits: pd.DataFrame
     log: tuple[Decision, ...]
     sources: dict[str, str | None]
+    units: dict[str, str] = field(default_factory=dict)
+    quantities: dict[str, str] = field(default_factory=dict)
 
 
 def build_parts(raws: dict[str, RawTable], opts: Options, *, shared_table: bool = False) -> Parts:
     """Every check of :class:`Survey`, in its documented order, on the raw tables."""
+    if "environment" in raws:
+        split_units_row(raws["environment"], opts.site_column)
     tables = site_tables(raws, opts)
     log: list[Decision] = [d for raw in raws.values() for d in raw.log]
     community = parse_community(tables["community"])
@@ -66,7 +70,13 @@ def build_parts(raws: dict[str, RawTable], opts: Options, *, shared_table: bool 
     if "environment" in tables:
         env, cens, env_log = parse_environment(tables["environment"], opts)
         log.extend(env_log)
+        env, units, quantities, unit_log = apply_units(env, tables["environment"], opts)
+        log.extend(unit_log)
     else:
+        units, quantities = {}, {}
+        if opts.units or opts.quantities:
+            raise InputError("`units` and `quantities` describe environmental columns, but no "
+                             "environmental table was given.")
         env = pd.DataFrame(index=community.index.copy())
         cens = pd.DataFrame(index=community.index.copy())
 
@@ -120,7 +130,10 @@ def build_parts(raws: dict[str, RawTable], opts: Options, *, shared_table: bool 
     cens = cens.astype(bool)
     sources = {role: (raws[role].path if role in raws else None)
                for role in ("community", "environment", "locations")}
-    return Parts(community, env, locations, cens, limits, tuple(log), sources)
+    kept = set(env.columns)
+    units = {c: u for c, u in units.items() if c in kept}
+    quantities = {c: q for c, q in quantities.items() if c in kept}
+    return Parts(community, env, locations, cens, limits, tuple(log), sources, units, quantities)
 
 
 def raw_table(obj: object, role: str, *, sheet: Any = None, layer: Any = None,

@@ -43,7 +43,7 @@ UNMATCHED = ("error", "keep-shared")
 class Key:
     """One key of the project file: its type, default, allowed values and meaning."""
 
-    kind: str  # "str", "path", "int", "bool", "names", "choice", "compositions"
+    kind: str  # "str", "path", "int", "bool", "names", "choice", "compositions", "mapping"
     default: Any = None
     help: str = ""
     choices: tuple[str, ...] = ()
@@ -95,6 +95,15 @@ SCHEMA: dict[str, dict[str, Key]] = {
         "factors": Key("names", (), "Categorical variables whose class centroids are placed in "
                        "the ordination."),
         "surfaces": Key("names", (), "Variables drawn as smooth surfaces over the ordination."),
+        "units": Key("mapping", {}, "Unit of environmental columns, as a table "
+                     "`[environment.units]` with lines such as `Cu = \"µg/g\"`; values are "
+                     "converted to the one unit of their quantity (mg/kg, mg/L, µS/cm, ...). A "
+                     "units row under the header of the table does the same."),
+        "quantities": Key("mapping", {}, "Quantity of environmental columns, as a table "
+                          "`[environment.quantities]` with lines such as `Cu = \"mass "
+                          "fraction\"`; by default inferred from the units. Quantities: mass "
+                          "fraction, percent, concentration in water, amount concentration, "
+                          "amount content, conductivity, pH, temperature, length, turbidity."),
     },
     "hypotheses": {},  # free names -> list of variables (checked separately)
     "design": {
@@ -225,6 +234,12 @@ def _check_value(section: str, name: str, key: Key, value: Any, base: Path) -> A
             if len(g) < 2:
                 raise InputError(f"{where}: a composition needs at least two parts; got {list(g)}.")
         return groups
+    if key.kind == "mapping":
+        if not isinstance(value, dict) or not all(
+                isinstance(k, str) and isinstance(v, str) and v.strip() for k, v in value.items()):
+            raise InputError(f"{where} must be a table of column = \"text\" lines, e.g. "
+                             f"[{section}.{name}] then Cu = \"mg/kg\"; got {value!r}.")
+        return dict(value)
     raise AssertionError(key.kind)  # pragma: no cover
 
 
@@ -272,7 +287,7 @@ def project_from_dict(data: dict[str, Any], *, base: Path | None = None,
             elif key.kind == "path" and key.default is not None:
                 settings[full] = (base / key.default).resolve()
             else:
-                settings[full] = key.default
+                settings[full] = dict(key.default) if key.kind == "mapping" else key.default
     for full in ("inputs.community", "inputs.environment", "inputs.locations"):
         path = settings.get(full)
         if path is not None and not Path(path).is_file():

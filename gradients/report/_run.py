@@ -25,7 +25,7 @@ from ._writers import OutputFolder, write_csv, write_workbook
 __all__ = ["analyse", "read_project_survey", "run_project", "write_report"]
 
 DEPENDENCIES = ("numpy", "scipy", "pandas", "statsmodels", "matplotlib", "geopandas", "shapely",
-                "pyproj", "pyogrio", "numba", "joblib", "openpyxl")
+                "pyproj", "pyogrio", "numba", "joblib", "openpyxl", "pint")
 
 
 def _version() -> str:
@@ -98,6 +98,8 @@ def _read(read_survey: Any, s: dict[str, Any]) -> Any:
         censored=s["inputs.below_detection"],
         empty_sites=s["inputs.empty_sites"],
         constant=s["inputs.constant"],
+        units=dict(s.get("environment.units") or {}) or None,
+        quantities=dict(s.get("environment.quantities") or {}) or None,
     )
 
 
