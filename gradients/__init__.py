@@ -34,6 +34,8 @@ _EXPORTS: dict[str, str] = {
     "simulate_survey": "data",
     "Decision": "data",
     "texture_class": "data",
+    "guideline_quotients": "data",
+    "GuidelineQuotientsResult": "data",
     # distance
     "DistanceMatrix": "distance",
     "dissimilarity": "distance",

@@ -2,7 +2,8 @@
 
 The public names are :class:`Survey`, :func:`read_survey`, :class:`Decision` (one record of
 :attr:`Survey.log`), :func:`demo_survey` and :func:`simulate_survey`; for soil and water inputs,
-:func:`texture_class`.
+:func:`texture_class` and :func:`guideline_quotients` (with its
+:class:`GuidelineQuotientsResult`).
 
 Module order (a module imports only modules above it in this list, so there is no import cycle):
 
@@ -20,13 +21,15 @@ Module order (a module imports only modules above it in this list, so there is n
 12. ``_policies``: missing and censored values, empty sites and taxa, constant columns.
 13. ``_assemble``: raw inputs through every check into the parts of a survey.
 14. ``_survey``: :class:`Survey` and :func:`read_survey`.
-15. ``_demo``: the simulated demo survey with its planted truth.
+15. ``_screening``: guideline quotients against a screening table.
+16. ``_demo``: the simulated demo survey with its planted truth.
 """
 
 from ._demo import DemoScenario, demo_survey, simulate_survey
 from ._log import Decision
+from ._screening import GuidelineQuotientsResult, guideline_quotients
 from ._survey import Survey, read_survey
 from ._texture import texture_class
 
-__all__ = ["Decision", "DemoScenario", "Survey", "demo_survey", "read_survey", "simulate_survey",
-           "texture_class"]
+__all__ = ["Decision", "DemoScenario", "GuidelineQuotientsResult", "Survey", "demo_survey",
+           "guideline_quotients", "read_survey", "simulate_survey", "texture_class"]

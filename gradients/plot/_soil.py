@@ -367,7 +367,7 @@ def quotient_map(
     ax : matplotlib.axes.Axes, optional
         Draw into these axes; by default a new figure in the house style is made.
     figsize : (float, float), optional
-        Size of the new figure, inches; default (6.4, 5.0).
+        Size of the new figure, inches; default (6.0, 6.4).
 
     Returns
     -------
@@ -381,7 +381,7 @@ def quotient_map(
     against a screening table, not whether a site is contaminated. Decisions rest with the local
     regulator and licensed professionals.
     """
-    size = check_figsize(figsize, (6.4, 5.0))
+    size = check_figsize(figsize, (6.0, 6.4))
     table = getattr(result, "table", None)
     classes = getattr(result, "exceedance_classes", None)
     if not isinstance(table, pd.DataFrame) or classes is None:
@@ -418,9 +418,10 @@ def quotient_map(
         axes.set_ylabel("Northing (km)")
         axes.grid(True, color=GRID)
         kind = getattr(result, "kind", "screening")
-        notes = [f"mean quotient {format_number(float(np.nanmin(mq)))}-{format_number(top)}"
-                 if finite.any() else "", "screening values only"]
-        set_title(axes, title, f"Mean quotient ({text(kind)} values)", notes)
-        place_legend(axes, handles, outside="right upper", inside="upper right")
-        _legend_title(axes, "Point size: mean quotient")
+        set_title(axes, title, f"Mean quotient ({text(kind)} values)",
+                  ["screening values only"])
+        place_legend(axes, handles, outside="lower center", inside="best")
+        span = (f" ({format_number(float(np.nanmin(mq)))} to {format_number(top)})"
+                if finite.any() else "")
+        _legend_title(axes, f"Point size: mean quotient{span}")
     return axes

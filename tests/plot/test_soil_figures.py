@@ -18,6 +18,7 @@ import pytest
 
 import gradients
 from gradients import InputError, plot
+from gradients.data._demo import DEMO_DIR
 from gradients.plot._soil import texture_polygons
 
 
@@ -97,3 +98,40 @@ def test_bad_inputs_name_the_fix(soils):
         plot.texture_triangle(soils, color="pH")
     with pytest.raises(InputError, match="no value for site"):
         plot.texture_triangle(soils, color=pd.Series([1.0], index=["a"]))
+
+
+def test_quotient_map_places_projected_sites_by_exceedance_class():
+    # pyproj (the reference library) projects the demo's lon/lat to its UTM zone (EPSG:32632
+    # for 9.4 E, 61 N: zone 32 north); the map draws kilometres
+    from pyproj import Transformer
+
+    survey = gradients.demo_survey()
+    result = gradients.guideline_quotients(survey, DEMO_DIR / "screening.csv")
+    ax = plot.quotient_map(result, survey.locations)
+    drawn = [c for c in ax.collections if c.get_label() == "_gr:quotients"]
+    assert len(drawn) == 3
+    counts = result.table["exceedance"].value_counts()
+    assert [len(c.get_offsets()) for c in drawn] == [int(counts.get(k, 0))
+                                                     for k in result.exceedance_classes]
+    to_utm = Transformer.from_crs("EPSG:4326", "EPSG:32632", always_xy=True)
+    lon, lat = survey.locations.geometry.x.to_numpy(), survey.locations.geometry.y.to_numpy()
+    x, y = to_utm.transform(lon, lat)
+    expected = sorted(zip(np.round(np.asarray(x) / 1000, 6), np.round(np.asarray(y) / 1000, 6),
+                          strict=True))
+    got = sorted(map(tuple, np.round(np.vstack([c.get_offsets() for c in drawn]), 6)))
+    assert got == expected
+    legend = ax.figure.legends[0]
+    words = [t.get_text() for t in legend.get_texts()]
+    assert words[0].startswith("no value above its probable effect value (")
+    assert ax.get_title(loc="right").endswith("screening values only")
+
+
+def test_quotient_map_refuses_what_it_cannot_draw():
+    survey = gradients.demo_survey()
+    result = gradients.guideline_quotients(survey, DEMO_DIR / "screening.csv")
+    with pytest.raises(InputError, match="must be the result of guideline_quotients"):
+        plot.quotient_map(survey, survey.locations)
+    with pytest.raises(InputError, match="`locations` must be a GeoDataFrame"):
+        plot.quotient_map(result, survey.environment)
+    with pytest.raises(InputError, match="no point for site"):
+        plot.quotient_map(result, survey.locations.iloc[:5])
