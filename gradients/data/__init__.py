@@ -14,15 +14,16 @@ Module order (a module imports only modules above it in this list, so there is n
 5. ``_compositions``: the one rule for compositions (parts sum to their total, or renormalise).
 6. ``_texture``: USDA soil texture classes from sand, silt and clay.
 7. ``_files``: files read into raw tables of cells (encodings, delimiters, sheets, layers).
-8. ``_options``: the keyword options of :class:`Survey`, checked once.
-9. ``_sites``: site matching: site IDs as labels, tables indexed by them, aligned on one index.
-10. ``_tables``: parsing the community and environment tables.
-11. ``_locations``: locations and CRS.
-12. ``_policies``: missing and censored values, empty sites and taxa, constant columns.
-13. ``_assemble``: raw inputs through every check into the parts of a survey.
-14. ``_survey``: :class:`Survey` and :func:`read_survey`.
-15. ``_screening``: guideline quotients against a screening table.
-16. ``_demo``: the simulated demo survey with its planted truth.
+8. ``_longform``: laboratory files in long form (one row per site and variable), pivoted.
+9. ``_options``: the keyword options of :class:`Survey`, checked once.
+10. ``_sites``: site matching: site IDs as labels, tables indexed by them, aligned on one index.
+11. ``_tables``: parsing the community and environment tables.
+12. ``_locations``: locations and CRS.
+13. ``_policies``: missing and censored values, empty sites and taxa, constant columns.
+14. ``_assemble``: raw inputs through every check into the parts of a survey.
+15. ``_survey``: :class:`Survey` and :func:`read_survey`.
+16. ``_screening``: guideline quotients against a screening table.
+17. ``_demo``: the simulated demo survey with its planted truth.
 """
 
 from ._demo import DemoScenario, demo_survey, simulate_survey

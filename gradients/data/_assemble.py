@@ -18,6 +18,7 @@ from .._errors import InputError
 from ._files import RawTable, read_file, table_from_frame
 from ._locations import parse_locations
 from ._log import Decision
+from ._longform import pivot_long
 from ._options import Options
 from ._policies import (
     apply_censored,
@@ -50,7 +51,11 @@ class Parts:
 def build_parts(raws: dict[str, RawTable], opts: Options, *, shared_table: bool = False) -> Parts:
     """Every check of :class:`Survey`, in its documented order, on the raw tables."""
     if "environment" in raws:
-        split_units_row(raws["environment"], opts.site_column)
+        wide = pivot_long(raws["environment"], opts.site_column, opts.quantities)
+        if wide is not None:
+            raws = {**raws, "environment": wide}
+        else:
+            split_units_row(raws["environment"], opts.site_column)
     tables = site_tables(raws, opts)
     log: list[Decision] = [d for raw in raws.values() for d in raw.log]
     community = parse_community(tables["community"])

@@ -77,6 +77,9 @@ SCHEMA: dict[str, dict[str, Key]] = {
                                choices=CENSORED),
         "missing": Key("choice", "error", "What to do with empty environmental cells.",
                        choices=MISSING),
+        "sheets": Key("mapping", {}, "Sheet to read from each .xlsx input, as a table "
+                      "`[inputs.sheets]` with lines such as `environment = \"chemistry\"` "
+                      "(keys: community, environment, locations); the first sheet by default."),
         "unmatched_sites": Key("choice", "error", "Sites present in one table but not another: "
                                "stop, or keep only the sites shared by all tables.",
                                choices=UNMATCHED),
@@ -296,6 +299,12 @@ def project_from_dict(data: dict[str, Any], *, base: Path | None = None,
                 "are read from the folder holding the project file; check the name.",
                 file=str(path),
             )
+    bad_roles = sorted(set(settings["inputs.sheets"]) - {"community", "environment",
+                                                          "locations"})
+    if bad_roles:
+        raise InputError(f"`inputs.sheets` names {format_items(bad_roles)}; its keys are the "
+                         "inputs 'community', 'environment' and 'locations', e.g. "
+                         "[inputs.sheets] then environment = \"chemistry\".")
     coords = settings["inputs.coordinates"]
     if coords and len(coords) != 2:
         raise InputError("`inputs.coordinates` must name two columns, x then y (or longitude "

@@ -90,6 +90,7 @@ def _read(read_survey: Any, s: dict[str, Any]) -> Any:
     return read_survey(
         s["inputs.community"], s["inputs.environment"], s["inputs.locations"],
         site_column=s["inputs.site_column"],
+        sheet=dict(s.get("inputs.sheets") or {}) or None,
         coordinates=tuple(s["inputs.coordinates"]) or None,
         crs=s["inputs.crs"],
         factors=list(s["environment.factors"]) or None,
