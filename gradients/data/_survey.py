@@ -319,6 +319,28 @@ limit (substitution, common practice; biased, Helsel 2012).
         )
         return Survey._from_parts(parts)
 
+    def _with_derived(self, columns: pd.DataFrame, decision: Decision,
+                      units: Mapping[str, str] | None = None) -> Survey:
+        """A new Survey whose environment gains ``columns`` (numeric, labelled by site, computed
+        from the survey, such as the mean guideline quotient), with ``decision`` in the log."""
+        clash = [c for c in columns.columns if c in self._environment.columns]
+        if clash:
+            raise InputError(f"The environmental table already has column(s) "
+                             f"{format_items(clash)}; rename them so that the derived "
+                             "column(s) can be added.", columns=clash)
+        added = columns.reindex(self.sites).astype(float)
+        env = pd.concat([self._environment, added], axis=1)
+        env.columns = pd.Index(list(env.columns), dtype=object)
+        cens = pd.concat([self._censored, pd.DataFrame(False, index=self.sites,
+                                                       columns=added.columns)], axis=1)
+        limits = pd.concat([self._limits, pd.DataFrame(np.nan, index=self.sites,
+                                                       columns=added.columns)], axis=1)
+        parts = Parts(community=self._community, environment=env, locations=self._locations,
+                      censored=cens.astype(bool), limits=limits, log=(*self._log, decision),
+                      sources=self._sources, units={**self._units, **dict(units or {})},
+                      quantities=self._quantities)
+        return Survey._from_parts(parts)
+
     def describe(self) -> pd.DataFrame:
         """One row per table: its source, sites, columns, kinds of columns and a short note.
 

@@ -107,6 +107,19 @@ SCHEMA: dict[str, dict[str, Key]] = {
                           "fraction\"`; by default inferred from the units. Quantities: mass "
                           "fraction, percent, concentration in water, amount concentration, "
                           "amount content, conductivity, pH, temperature, length, turbidity."),
+        "renormalise_compositions": Key("bool", False, "Rescale to 100 the samples whose parts "
+                                        "of a composition (the texture) do not sum to 100 "
+                                        "within 1 percentage point, instead of stopping with "
+                                        "an error naming them; listed in the input decisions."),
+        "texture": Key("names", (), "The sand, silt and clay columns, in this order (e.g. "
+                       "[\"sand\", \"silt\", \"clay\"], percentages): the report then gives "
+                       "each site's USDA texture class and the texture triangle."),
+        "screening": Key("path", None, "A screening table (CSV or .xlsx: variable, value, unit, "
+                         "kind, source): the report then gives guideline quotients, their "
+                         "exceedances and a map, and `mean_quotient` becomes a variable that "
+                         "hypotheses may name."),
+        "screening_kind": Key("str", "probable effect", "The kind of screening value the "
+                              "quotients use (a value of the table's `kind` column)."),
     },
     "hypotheses": {},  # free names -> list of variables (checked separately)
     "design": {
@@ -291,7 +304,13 @@ def project_from_dict(data: dict[str, Any], *, base: Path | None = None,
                 settings[full] = (base / key.default).resolve()
             else:
                 settings[full] = dict(key.default) if key.kind == "mapping" else key.default
-    for full in ("inputs.community", "inputs.environment", "inputs.locations"):
+    texture = settings["environment.texture"]
+    if texture and len(texture) != 3:
+        raise InputError("`environment.texture` must name three columns, sand, silt and clay in "
+                         f"this order, e.g. [\"sand\", \"silt\", \"clay\"]; got "
+                         f"{list(texture)}.", columns=list(texture))
+    for full in ("inputs.community", "inputs.environment", "inputs.locations",
+                 "environment.screening"):
         path = settings.get(full)
         if path is not None and not Path(path).is_file():
             raise InputError(
