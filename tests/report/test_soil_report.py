@@ -105,9 +105,9 @@ def test_project_keys_are_checked(project: Path) -> None:
     text = project.read_text(encoding="utf-8")
     project.write_text(text.replace('texture = ["sand", "silt", "clay"]',
                                     'texture = ["sand", "clay"]'), encoding="utf-8")
-    with pytest.raises(InputError, match="`environment.texture` must name three columns"):
+    with pytest.raises(InputError, match=r"`environment\.texture` must name three columns"):
         gradients.load_project(project)
     project.write_text(text.replace('screening = "data/screening.csv"',
                                     'screening = "data/none.csv"'), encoding="utf-8")
-    with pytest.raises(InputError, match="`environment.screening` names the file"):
+    with pytest.raises(InputError, match=r"`environment\.screening` names the file"):
         gradients.load_project(project)
