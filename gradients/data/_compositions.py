@@ -78,11 +78,14 @@ def check_closure(
     if not isinstance(renormalise, bool | np.bool_):
         raise InputError(f"`renormalise` must be True or False; got {renormalise!r}.")
     values = parts.to_numpy(dtype=float)
-    labels = [str(i) for i in parts.index]
+
+    def labels(rows: np.ndarray) -> list[str]:  # only the rows a message or record names
+        return [str(parts.index[i]) for i in rows]
+
     complete = ~np.isnan(values).any(axis=1)
     negative = complete & (values < 0).any(axis=1)
     if negative.any():
-        bad = [labels[i] for i in np.flatnonzero(negative)]
+        bad = labels(np.flatnonzero(negative))
         raise InputError(
             f"The {what} has negative parts at sample(s) {format_items(bad)}; parts of a "
             "composition are amounts and cannot be negative. Correct these values.",
@@ -90,7 +93,7 @@ def check_closure(
     sums = values.sum(axis=1)
     zero = complete & (sums == 0)
     if zero.any():
-        bad = [labels[i] for i in np.flatnonzero(zero)]
+        bad = labels(np.flatnonzero(zero))
         raise InputError(
             f"Every part of the {what} is zero at sample(s) {format_items(bad)}, so they cannot "
             "be closed to their total. Correct or remove these samples.",
@@ -99,7 +102,10 @@ def check_closure(
     decision = None
     if off.any():
         idx = np.flatnonzero(off)
-        listed = format_items([f"{labels[i]} (sum {sums[i]:g})" for i in idx], quote=False)
+        named = labels(idx)
+        listed = format_items([f"{name} (sum {sums[i]:g})" for name, i in zip(named, idx,
+                                                                              strict=True)],
+                              quote=False)
         if not renormalise:
             raise InputError(
                 f"The parts of the {what} do not sum to {total:g} (within {tol:g}) at "
@@ -108,12 +114,12 @@ def check_closure(
                 f"different whole, ask for them to be renormalised with {key} (each part is "
                 f"then scaled by {total:g}/sum, and the samples are listed in the input "
                 "decisions).",
-                sites=[labels[i] for i in idx], columns=[str(c) for c in parts.columns])
+                sites=named, columns=[str(c) for c in parts.columns])
         decision = Decision(
             "renormalise",
             f"The {what} did not sum to {total:g} (within {tol:g}) at {len(idx)} sample(s) "
             f"and was renormalised (each part scaled by {total:g}/sum): {listed}.",
-            len(idx), sites=tuple(labels[i] for i in idx),
+            len(idx), sites=tuple(named),
             columns=tuple(str(c) for c in parts.columns))
     closed = values.copy()
     closed[complete] = values[complete] * (total / sums[complete])[:, None]

@@ -89,11 +89,23 @@ def class_masks(sand: np.ndarray, silt: np.ndarray, clay: np.ndarray,
     ``100 * RESOLUTION``.
     """
     out = np.zeros((len(rules), len(sand)), dtype=bool)
+    sums: dict[tuple[int, int, int], np.ndarray] = {}  # each linear form computed once
+    tests: dict[tuple[int, int, int, str, int], np.ndarray] = {}  # each inequality once
+    parts = {(1, 0, 0): sand, (0, 1, 0): silt, (0, 0, 1): clay}
+    ok = np.empty(len(sand), dtype=bool)
     for k, branches in enumerate(rules.values()):
         for branch in branches:
-            ok = np.ones(len(sand), dtype=bool)
-            for a_s, a_z, a_c, op, bound in branch:
-                ok &= _OPS[op](a_s * sand + a_z * silt + a_c * clay, bound * RESOLUTION)
+            ok.fill(True)
+            for constraint in branch:
+                if constraint not in tests:
+                    form = constraint[:3]
+                    if form not in sums:
+                        a_s, a_z, a_c = form
+                        sums[form] = parts[form] if form in parts else (
+                            a_s * sand + a_z * silt + a_c * clay)
+                    tests[constraint] = _OPS[constraint[3]](sums[form],
+                                                            constraint[4] * RESOLUTION)
+                ok &= tests[constraint]
             out[k] |= ok
     return out
 
@@ -105,10 +117,14 @@ def _as_series(value: Any, name: str) -> pd.Series:
         raise InputError(f"`{name}` must be one column of percentages (a Series or an array), "
                          "not a DataFrame; pass frame[\"" + name + "\"].")
     else:
-        arr = np.atleast_1d(np.asarray(value, dtype=object))
+        arr = np.atleast_1d(np.asarray(value))
         if arr.ndim != 1:
             raise InputError(f"`{name}` must be one-dimensional; got shape {arr.shape}.")
-        s = pd.Series(arr)
+        if arr.dtype.kind in "fiu":  # numbers already: no cell-by-cell conversion
+            return pd.Series(arr.astype(float, copy=False))
+        s = pd.Series(arr.astype(object))
+    if pd.api.types.is_numeric_dtype(s.dtype) and not pd.api.types.is_bool_dtype(s.dtype):
+        return s.astype(float)
     numbers = pd.to_numeric(s, errors="coerce")
     bad = numbers.isna() & s.notna()
     if bool(bad.any()):
@@ -188,7 +204,7 @@ def texture_class(
                 raise InputError(
                     f"`sand` and `{n}` are labelled by different samples; pass the three columns "
                     "of one table (their labels are the site IDs).")
-        parts = [p.loc[index] for p in parts]
+        parts = [p if p.index.equals(index) else p.loc[index] for p in parts]
     else:
         lengths = {len(p) for p in parts}
         if len(lengths) != 1:
