@@ -12,9 +12,10 @@ from collections.abc import Mapping
 from dataclasses import dataclass, field
 from typing import Any
 
+import numpy as np
 import pandas as pd
 
-from .._errors import InputError
+from .._errors import InputError, format_items
 from ._files import RawTable, read_file, table_from_frame
 from ._locations import parse_locations
 from ._log import Decision
@@ -30,7 +31,7 @@ from ._policies import (
 from ._sites import MIN_SITES, align_sites, site_tables
 from ._tables import apply_units, parse_community, parse_environment, split_units_row
 
-__all__ = ["Parts", "build_parts", "raw_table", "same_table"]
+__all__ = ["Parts", "build_parts", "derive", "raw_table", "same_table"]
 
 
 @dataclass
@@ -191,3 +192,25 @@ def same_table(environment: object, locations: object) -> bool:
             return False
     return False
 
+
+def derive(parts: Parts, columns: pd.DataFrame, decision: Decision,
+           units: Mapping[str, str] | None = None) -> Parts:
+    """``parts`` with numeric ``columns`` (labelled by site) added to the environment and
+    ``decision`` to the log; the new columns are not censored."""
+    env = parts.environment
+    clash = [c for c in columns.columns if c in env.columns]
+    if clash:
+        raise InputError(f"The environmental table already has column(s) "
+                         f"{format_items(clash)}; rename them so that the derived column(s) can "
+                         "be added.", columns=clash)
+    sites = env.index
+    added = columns.reindex(sites).astype(float)
+    new_env = pd.concat([env, added], axis=1)
+    new_env.columns = pd.Index(list(new_env.columns), dtype=object)
+    cens = pd.concat([parts.censored, pd.DataFrame(False, index=sites, columns=added.columns)],
+                     axis=1).astype(bool)
+    limits = pd.concat([parts.limits, pd.DataFrame(np.nan, index=sites, columns=added.columns)],
+                       axis=1)
+    return Parts(parts.community, new_env, parts.locations, cens, limits,
+                 (*parts.log, decision), parts.sources, {**parts.units, **dict(units or {})},
+                 parts.quantities)

@@ -17,7 +17,7 @@ import numpy as np
 import pandas as pd
 
 from .._errors import InputError, format_items
-from ._assemble import Parts, build_parts, raw_table, same_table
+from ._assemble import Parts, build_parts, derive, raw_table, same_table
 from ._log import Decision
 from ._options import (
     CONSTANT_POLICIES,
@@ -321,25 +321,11 @@ limit (substitution, common practice; biased, Helsel 2012).
 
     def _with_derived(self, columns: pd.DataFrame, decision: Decision,
                       units: Mapping[str, str] | None = None) -> Survey:
-        """A new Survey whose environment gains ``columns`` (numeric, labelled by site, computed
-        from the survey, such as the mean guideline quotient), with ``decision`` in the log."""
-        clash = [c for c in columns.columns if c in self._environment.columns]
-        if clash:
-            raise InputError(f"The environmental table already has column(s) "
-                             f"{format_items(clash)}; rename them so that the derived "
-                             "column(s) can be added.", columns=clash)
-        added = columns.reindex(self.sites).astype(float)
-        env = pd.concat([self._environment, added], axis=1)
-        env.columns = pd.Index(list(env.columns), dtype=object)
-        cens = pd.concat([self._censored, pd.DataFrame(False, index=self.sites,
-                                                       columns=added.columns)], axis=1)
-        limits = pd.concat([self._limits, pd.DataFrame(np.nan, index=self.sites,
-                                                       columns=added.columns)], axis=1)
-        parts = Parts(community=self._community, environment=env, locations=self._locations,
-                      censored=cens.astype(bool), limits=limits, log=(*self._log, decision),
-                      sources=self._sources, units={**self._units, **dict(units or {})},
-                      quantities=self._quantities)
-        return Survey._from_parts(parts)
+        """A new Survey whose environment gains ``columns`` (derived from the survey, such as the
+        mean guideline quotient), with ``decision`` in the log (see :func:`._assemble.derive`)."""
+        parts = Parts(self._community, self._environment, self._locations, self._censored,
+                      self._limits, self._log, self._sources, self._units, self._quantities)
+        return Survey._from_parts(derive(parts, columns, decision, units))
 
     def describe(self) -> pd.DataFrame:
         """One row per table: its source, sites, columns, kinds of columns and a short note.
