@@ -29,7 +29,10 @@ __all__ = [
     "CENTRED_CORRECTIONS",
     "GowerMatrix",
     "PermutedTraces",
+    "cailliez_constant",
+    "gower_centre",
     "gower_centred",
+    "lingoes_constant",
     "permuted_products",
     "permuted_traces",
 ]
@@ -171,7 +174,7 @@ def gower_centred(
         raise InputError(f"A centred matrix needs at least 2 sites; the distance matrix has "
                          f"{dm.n}.")
     square = dm.square().astype(np.float64, copy=False)
-    g = _centre(-0.5 * square * square)
+    g = gower_centre(-0.5 * square * square)
     notes: list[str] = []
     constant = 0.0
     applied = dm
@@ -186,10 +189,10 @@ def gower_centred(
                 g = g + constant * (np.eye(dm.n) - 1.0 / dm.n)
                 relation = f"d' = sqrt(d^2 + 2c), c = {constant:.6g} (Lingoes 1971)"
             else:
-                constant = _cailliez_constant(square, g)
+                constant = cailliez_constant(square, g1=g)
                 fixed = square + constant
                 np.fill_diagonal(fixed, 0.0)
-                g = _centre(-0.5 * fixed * fixed)
+                g = gower_centre(-0.5 * fixed * fixed)
                 relation = f"d' = d + c, c = {constant:.6g} (Cailliez 1983)"
             np.fill_diagonal(fixed, 0.0)
             applied = DistanceMatrix.from_square(fixed, dm.labels, metric=dm.metric,
@@ -207,28 +210,47 @@ def gower_centred(
                        notes=tuple(notes))
 
 
-def _centre(a: np.ndarray) -> np.ndarray:
-    """``J A J`` for a symmetric ``A``."""
+def gower_centre(a: np.ndarray) -> np.ndarray:
+    """Double-centre a symmetric matrix: ``(I - 11'/n) A (I - 11'/n)`` (Gower 1966)."""
+    a = np.asarray(a, dtype=np.float64)
     row = a.mean(axis=1, keepdims=True)
-    return a - row - row.T + row.mean()
+    col = a.mean(axis=0, keepdims=True)
+    return a - row - col + a.mean()
 
 
-def _cailliez_constant(square: np.ndarray, g1: np.ndarray, *, dense_max: int = 400) -> float:
-    """Largest real eigenvalue of ``[[0, 2 G1], [-I, -4 G2]]`` (Cailliez 1983).
+def lingoes_constant(square: np.ndarray) -> float:
+    """Lingoes (1971) constant: minus the smallest eigenvalue of the Gower matrix (0 if none).
 
-    The same constant as :func:`gradients.ordination.cailliez_constant`, computed here because
-    the distance stage cannot import the ordination stage: densely up to ``dense_max`` sites,
-    beyond by Arnoldi iteration on products with the blocks (dense if that fails).
+    Replacing ``d`` by ``sqrt(d**2 + 2 c)`` for every pair of distinct sites adds ``c`` to every
+    non-trivial eigenvalue, so the smallest becomes 0 (Legendre & Legendre 2012, sect. 9.3.4).
+    """
+    smallest = float(np.linalg.eigvalsh(gower_centre(-0.5 * square**2))[0])
+    return max(-smallest, 0.0)
+
+
+def cailliez_constant(square: np.ndarray, *, dense_max: int = 400,
+                      g1: np.ndarray | None = None) -> float:
+    """Cailliez (1983) constant: the largest eigenvalue of the 2n x 2n block matrix.
+
+    ``[[0, 2 G1], [-I, -4 G2]]`` with ``G1`` the Gower-centred ``-d**2 / 2`` and ``G2`` the
+    Gower-centred ``-d / 2``. Adding it to every distance between distinct sites gives the
+    smallest constant that makes the matrix Euclidean (Cailliez 1983; Legendre & Legendre 2012,
+    sect. 9.3.4); ``g1``, when the caller has it already, saves computing it again. Up to
+    ``dense_max`` sites the block matrix is solved densely; beyond, its eigenvalue of largest
+    real part is found by Arnoldi iteration on products with the blocks
+    (:func:`scipy.sparse.linalg.eigs`), falling back to the dense solver if that fails.
     """
     n = square.shape[0]
-    g2 = _centre(-0.5 * square)
+    if g1 is None:
+        g1 = gower_centre(-0.5 * square**2)
+    g2 = gower_centre(-0.5 * square)
     if n > dense_max:
         def matvec(z: np.ndarray) -> np.ndarray:
             u, v = z[:n], z[n:]
             return np.concatenate((2.0 * (g1 @ v), -u - 4.0 * (g2 @ v)))
 
         op = scipy.sparse.linalg.LinearOperator((2 * n, 2 * n), matvec=matvec, dtype=np.float64)
-        start = np.random.default_rng(0).normal(size=2 * n)  # fixed: reproducible
+        start = np.random.default_rng(0).normal(size=2 * n)
         try:
             value = scipy.sparse.linalg.eigs(op, k=1, which="LR", v0=start,
                                              return_eigenvectors=False)[0]
@@ -242,7 +264,10 @@ def _cailliez_constant(square: np.ndarray, g1: np.ndarray, *, dense_max: int = 4
     block[n:, n:] = -4.0 * g2
     values = scipy.linalg.eigvals(block, overwrite_a=True, check_finite=False)
     real = values[np.abs(values.imag) <= 1e-8 * np.maximum(np.abs(values.real), 1.0)].real
-    return max(float((real if real.size else values.real).max()), 0.0)
+    if real.size == 0:  # not expected: the largest eigenvalue is real (Cailliez 1983)
+        real = values.real
+    return max(float(real.max()), 0.0)
+
 
 
 # =========================================================================== batched traces

@@ -9,7 +9,6 @@ columns and the fix, before any matrix is built.
 
 from __future__ import annotations
 
-import numbers
 from collections.abc import Sequence
 from dataclasses import dataclass
 
@@ -18,7 +17,7 @@ import pandas as pd
 import scipy.linalg
 
 from .._errors import InputError, format_items
-from .._validation import check_labels_match, check_unambiguous_series
+from .._validation import align_strata, check_labels_match, check_n_jobs
 
 __all__ = [
     "Block",
@@ -263,33 +262,3 @@ def residualise(x: np.ndarray, basis: np.ndarray) -> np.ndarray:
         xc = xc - basis @ (basis.T @ xc)  # a second pass for accuracy
     q, _ = np.linalg.qr(xc)
     return np.ascontiguousarray(q)
-
-
-# --------------------------------------------------------------------------- arguments
-def check_n_jobs(n_jobs: object) -> int:
-    """``n_jobs`` as an int: a positive number of workers, or -1 for all cores."""
-    if not isinstance(n_jobs, numbers.Integral) or isinstance(n_jobs, bool) or n_jobs == 0 \
-            or n_jobs < -1:
-        raise InputError(f"`n_jobs` must be a positive integer or -1 (all cores); got {n_jobs!r}.")
-    return int(n_jobs)
-
-
-def align_strata(strata: object, labels: pd.Index) -> np.ndarray | None:
-    """Strata in site order: a Series is matched by site label, other sequences by position."""
-    if strata is None:
-        return None
-    if isinstance(strata, pd.Series):
-        check_unambiguous_series(strata, labels, "strata")
-        default = isinstance(strata.index, pd.RangeIndex) and set(strata.index) != set(labels)
-        if not default:
-            check_labels_match(labels, strata.index, left_name="the distance matrix",
-                               right_name="`strata`",
-                               fix="Give one stratum label for every site, indexed by site.")
-            return strata.loc[labels].to_numpy(dtype=object)
-        strata = strata.to_numpy(dtype=object)
-    values = np.asarray(list(strata) if not isinstance(strata, np.ndarray) else strata,
-                        dtype=object)
-    if values.ndim != 1 or len(values) != len(labels):
-        raise InputError(f"`strata` must give one label per site: {len(values)} labels for "
-                         f"{len(labels)} sites.")
-    return values

@@ -19,18 +19,17 @@ traces come from the distance stage's batched kernel for a whole batch of orders
 
 from __future__ import annotations
 
-import contextlib
 import dataclasses
-from collections.abc import Iterator, Sequence
+from collections.abc import Sequence
 from dataclasses import dataclass, field
 
-import numba
 import numpy as np
 import pandas as pd
 
 from .._errors import InputError
 from ..distance._centred import PermutedTraces, permuted_products
 from ..permutation import PermutationPlan, PermutationResult, permutation_plan, permutation_test
+from ..permutation._threads import numba_threads
 
 __all__ = [
     "BATCH_SIZE",
@@ -166,19 +165,6 @@ def axis_test(name: str, g: np.ndarray, reduced: np.ndarray, remaining: np.ndarr
 
 
 # --------------------------------------------------------------------------- running
-@contextlib.contextmanager
-def numba_threads(n_jobs: int) -> Iterator[None]:
-    """The compiled kernels in the block use ``n_jobs`` threads (-1: all), then restore."""
-    top = int(numba.config.NUMBA_NUM_THREADS)
-    want = top if n_jobs < 0 else max(1, min(int(n_jobs), top))
-    before = numba.get_num_threads()
-    numba.set_num_threads(want)
-    try:
-        yield
-    finally:
-        numba.set_num_threads(before)
-
-
 def make_plan(labels: pd.Index, *, strata: np.ndarray | None, n_resamples: int,
               rng: object) -> PermutationPlan:
     """Free permutation of the sites, or within ``strata``; random orders keyed by label."""

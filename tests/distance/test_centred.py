@@ -17,7 +17,7 @@ from gradients.distance import (
     permuted_products,
     permuted_traces,
 )
-from gradients.distance._centred import PermutedTraces, _cailliez_constant
+from gradients.distance._centred import PermutedTraces
 from gradients.ordination import pcoa
 from gradients.ordination._pcoa import cailliez_constant, lingoes_constant
 
@@ -86,7 +86,7 @@ def test_cailliez_correction_matches_pcoa_code_and_makes_the_matrix_euclidean():
     sq = d.square()
     a = -0.5 * sq**2
     j = np.eye(16) - 1 / 16
-    assert _cailliez_constant(sq, j @ a @ j, dense_max=4) == pytest.approx(g.constant, rel=1e-7)
+    assert cailliez_constant(sq, g1=j @ a @ j, dense_max=4) == pytest.approx(g.constant, rel=1e-7)
 
 
 def test_correction_of_a_euclidean_matrix_does_nothing_and_says_so():
