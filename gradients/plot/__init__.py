@@ -12,8 +12,9 @@ draws its figures with these same functions.
   :func:`surface` (a fitted surface as contours); :func:`shepard` (the Shepard diagram of an
   NMDS).
 - Matrix tests: :func:`correlogram` (Mantel correlogram), :func:`distance_decay`.
-- Hypotheses: :func:`hypotheses`; drawn from tidy tables ahead of their stages:
-  :func:`ranking`, :func:`turnover_curves`, :func:`partition`.
+- Hypotheses: :func:`hypotheses`; drawn from a tidy table ahead of its stage: :func:`partition`.
+- Ranking: :func:`ranking` (variables ranked against turnover), :func:`turnover_curves` (the
+  fitted turnover functions, steepest stretch marked).
 - :func:`house_style`: the house style as a ``with`` block, to restyle or save a figure.
 
 No pyplot is used: figures are built on :class:`matplotlib.figure.Figure` directly, so nothing
@@ -21,9 +22,10 @@ opens a window and no global matplotlib state changes.
 """
 
 from ._biplot import biplot
-from ._hypotheses import hypotheses, partition, ranking, turnover_curves
+from ._hypotheses import hypotheses, partition
 from ._matrix import correlogram, distance_decay
 from ._ordination import arrows, centroids, legend, sites, taxa
+from ._ranking import ranking, turnover_curves
 from ._style import house_style
 from ._surfaces import shepard, surface
 

@@ -22,6 +22,7 @@ from ..fitting import GradientArrowsResult, fit_vectors
 from ..matrix import mantel
 from ..ordination import pcoa
 from ..partition import ForwardSelectionResult, forward_select
+from ..partition._design import COLLINEAR_RTOL
 from ._inputs import read_candidates, read_dissimilarities, strata_for
 from ._subsets import SubsetSearchResult, subset_search
 from ._turnover import turnover_model
@@ -63,7 +64,8 @@ class VariableRankingResult(ResultMixin):
         The sort rule in one sentence.
     subsets : SubsetSearchResult
     turnover : TurnoverModelResult
-    selection : ForwardSelectionResult
+    selection : ForwardSelectionResult or None
+        None when the sites are too few to fit every candidate together (the notes say so).
     vectors : GradientArrowsResult
     n_sites : int
     notes : tuple of str
@@ -73,7 +75,7 @@ class VariableRankingResult(ResultMixin):
     sort_rule: str
     subsets: SubsetSearchResult
     turnover: TurnoverModelResult
-    selection: ForwardSelectionResult
+    selection: ForwardSelectionResult | None
     vectors: GradientArrowsResult
     n_sites: int
     notes: tuple[str, ...] = ()
@@ -118,6 +120,40 @@ def collinearity(frame: pd.DataFrame) -> pd.DataFrame:
         rows.append({"variable": name, "collinear": flagged, "collinear_with": with_text,
                      "vif": float(vif[j])})
     return pd.DataFrame(rows).set_index("variable")
+
+
+def _independent(frame: pd.DataFrame) -> list[str]:
+    """The columns, in order, that are not exact linear combinations of those before them (and
+    of the intercept), with the partition stage's tolerance."""
+    x = frame.to_numpy(dtype=np.float64)
+    xc = x - x.mean(axis=0)
+    xc = xc / np.sqrt(np.sum(xc * xc, axis=0))
+    kept: list[int] = []
+    for j in range(xc.shape[1]):
+        sv = np.linalg.svd(xc[:, [*kept, j]], compute_uv=False)
+        if sv[-1] > COLLINEAR_RTOL * sv[0]:
+            kept.append(j)
+    return [frame.columns[j] for j in kept]
+
+
+def _select(dm: DistanceMatrix, env: pd.DataFrame, n_resamples: int, seed, strata,
+            n_jobs: int) -> tuple[ForwardSelectionResult | None, list[str]]:
+    """Forward selection over the candidates a linear model can hold, and what it left out."""
+    kept = _independent(env)
+    left = [c for c in env.columns if c not in kept]
+    if len(kept) + 2 > dm.n:
+        return None, [f"Forward selection was not run: {dm.n} sites cannot fit the "
+                      f"{len(kept)} candidates together, and its first step tests them all "
+                      "(Blanchet et al. 2008); its columns are empty and do not affect the "
+                      "sort."]
+    notes = []
+    if left:
+        notes.append(f"Forward selection left out {', '.join(map(str, left))}: exact linear "
+                     "combination(s) of the other candidates (the parts of a composition that "
+                     "sums to a constant do this; take its log-ratios).")
+    selection = forward_select(dm, env[kept], n_resamples=n_resamples, rng=seed,
+                               strata=strata, n_jobs=n_jobs)
+    return selection, notes
 
 
 def _ranks(values: pd.Series, larger_better: bool) -> pd.Series:
@@ -208,8 +244,7 @@ def rank_variables(
                             n_jobs=n_jobs)
     turnover = turnover_model(dm, env, geo=geo, n_resamples=turnover_resamples, rng=seeds[1],
                               strata=strata_v, n_jobs=n_jobs)
-    selection = forward_select(dm, env, n_resamples=n_resamples, rng=seeds[2],
-                               strata=strata_v, n_jobs=n_jobs)
+    selection, selection_notes = _select(dm, env, n_resamples, seeds[2], strata_v, n_jobs)
     vectors = fit_vectors(pcoa(dm, dimensions=2), env, n_resamples=n_resamples, rng=seeds[3],
                           strata=strata_v, n_jobs=n_jobs)
     mantels = {}
@@ -226,6 +261,7 @@ def rank_variables(
             f"variable, or a variance inflation factor above {COLLINEAR_VIF:g}): they carry "
             "much the same information, so the order among them, and which of them enters a "
             "subset or a model first, should not be read as meaningful.")
+    notes.extend(selection_notes)
     notes.append(
         f"Permutations: {subsets.n_resamples} for the subset search, forward selection, vector "
         f"fits and Mantel tests; {turnover.n_resamples} per turnover predictor.")
@@ -235,7 +271,7 @@ def rank_variables(
 
 
 def _table(names: tuple[str, ...], subsets: SubsetSearchResult, turnover: TurnoverModelResult,
-           selection: ForwardSelectionResult, vectors: GradientArrowsResult,
+           selection: ForwardSelectionResult | None, vectors: GradientArrowsResult,
            mantels: dict[str, tuple[float, float]], env: pd.DataFrame) -> pd.DataFrame:
     table = pd.DataFrame(index=pd.Index(list(names), name="variable"))
     first = {}
@@ -246,7 +282,8 @@ def _table(names: tuple[str, ...], subsets: SubsetSearchResult, turnover: Turnov
     table["first_best_size"] = pd.array([first.get(v) for v in names], dtype="Int64")
     table["importance"] = turnover.table["importance"].reindex(names).to_numpy()
     table["importance_pvalue"] = turnover.table["pvalue"].reindex(names).to_numpy()
-    entered = selection.table[selection.table["entered"]].set_index("variable")
+    entered = (selection.table[selection.table["entered"]].set_index("variable")
+               if selection is not None else pd.DataFrame(columns=["order", "gain"]))
     table["selection_order"] = pd.array(
         [int(entered.loc[v, "order"]) if v in entered.index else None for v in names],
         dtype="Int64")

@@ -113,3 +113,24 @@ def test_bad_input_is_explained():
         rank_variables(d, env.assign(b=1.0))
     with pytest.raises(InputError, match=r"`n_resamples` must be a positive integer"):
         rank_variables(d, env, n_resamples=0)
+
+
+def test_forward_selection_leaves_out_exact_combinations_and_needs_enough_sites():
+    # the parts of a composition sum to 100: one is a linear combination of the others (and the
+    # intercept), which a linear model cannot hold (the partition stage refuses it)
+    from ranking_calibration import planted_survey
+
+    d, env = planted_survey(33)
+    env = env.iloc[:, :3].assign(part_a=np.linspace(10, 40, len(env)))
+    env["part_b"] = 100 - env["part_a"] - 30 * (env["v0"] > 0)
+    env["part_c"] = 100 - env["part_a"] - env["part_b"]
+    res = rank_variables(d, env, n_resamples=19, turnover_resamples=0, rng=2)
+    assert any(n.startswith("Forward selection left out part_c: exact linear") for n in res.notes)
+    assert "part_c" not in set(res.selection.table["variable"])
+    assert np.isinf(res.table.loc["part_c", "vif"]) and res.table.loc["part_c", "collinear"]
+    # too few sites for the global model of every candidate: no forward selection at all
+    few = d.subset(d.labels[:6])
+    res = rank_variables(few, env.iloc[:6], n_resamples=19, turnover_resamples=0, rng=2)
+    assert res.selection is None and res.table["selection_order"].isna().all()
+    assert any(n.startswith("Forward selection was not run: 6 sites cannot fit the 5 ")
+               for n in res.notes)

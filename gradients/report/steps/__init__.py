@@ -7,7 +7,8 @@ them into a report: analysis units of the variables (log10, log-ratios, km), the
 adjustment across hypotheses, correlations among the predictor matrices, and the verdict per
 hypothesis (see :mod:`.verdicts`). One module per stage: :mod:`.community` (community,
 environment, geography), :mod:`.ordination` (ordination and fitting), :mod:`.matrix` (the
-Mantel family, regression, correlogram, distance decay) and :mod:`.verdicts`; the demo's
+Mantel family, regression, correlogram, distance decay), :mod:`.ranking` (variables ranked
+against turnover) and :mod:`.verdicts`; the demo's
 planted-truth step lives with the demo (``gradients.report._demo_truth``, beside the demo code).
 
 :data:`STEPS` is the one list :func:`~gradients.report._pipeline.run_steps` runs: each step
@@ -36,6 +37,7 @@ from .ordination import (
     surfaces_step,
     vectors_step,
 )
+from .ranking import ranking_step
 from .verdicts import verdicts_step
 
 __all__ = ["SECTION_ORDER", "STEPS", "order_sections"]
@@ -54,13 +56,15 @@ STEPS: tuple[Step, ...] = (
     Step("regression", regression_step, "analyses.regression"),
     Step("correlogram", correlogram_step, "analyses.correlogram"),
     Step("distance_decay", distance_decay_step, "analyses.distance_decay"),
+    Step("ranking", ranking_step, "analyses.ranking"),
     Step("verdicts", verdicts_step, "analyses.verdicts"),
     Step("planted_truth", planted_truth_step),
     Step("surfaces", surfaces_step, "analyses.surfaces"),
 )
 
 #: Order of the sections in the report (steps run in dependency order, which differs).
-SECTION_ORDER = ("verdicts", "planted_truth", "ordination", "vectors", "surfaces", "factors",
+SECTION_ORDER = ("verdicts", "planted_truth", "ranking", "ordination", "vectors", "surfaces",
+                 "factors",
                  "mantel", "partial_mantel", "regression", "correlogram", "distance_decay")
 
 
