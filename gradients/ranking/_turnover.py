@@ -1,5 +1,6 @@
-"""Generalized dissimilarity modelling (Ferrier et al. 2007): where along each gradient the
-community turns over, and how much.
+"""Generalized dissimilarity modelling (Ferrier et al. 2007): how much turnover, and where.
+
+Where along each gradient the community turns over, and how much.
 
 :func:`turnover_model` builds the I-spline differences of every predictor for every pair of
 sites (:mod:`._splines`), fits the non-negative model by maximum likelihood (:mod:`._gdm`),

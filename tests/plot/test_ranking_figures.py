@@ -74,7 +74,8 @@ def test_ranking_bars_follow_the_ranking_and_mark_collinear_variables(results):
     (bars,) = [c for c in ax.containers if c.get_label() == "_gr:bars"]
     ordered = sorted(bars.patches, key=lambda p: -p.get_y())
     np.testing.assert_allclose([p.get_width() for p in ordered], ranked.table["importance"])
-    labels = [t.get_text() for t in sorted(ax.get_yticklabels(), key=lambda t: -t.get_position()[1])]
+    ticks = sorted(ax.get_yticklabels(), key=lambda t: -t.get_position()[1])
+    labels = [t.get_text() for t in ticks]
     expected = [v + (" ≈" if c else "") for v, c in
                 zip(ranked.table.index, ranked.table["collinear"], strict=True)]
     assert labels == expected and any(" ≈" in x for x in labels)

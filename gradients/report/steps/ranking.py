@@ -92,7 +92,7 @@ def _interval_text(name: str, low: float, high: float, logs: dict[str, str]) -> 
 def _number(v: float) -> str:
     if v == 0 or not math.isfinite(v):
         return f"{v:g}"
-    digits = max(0, 2 - int(math.floor(math.log10(abs(v)))))
+    digits = max(0, 2 - math.floor(math.log10(abs(v))))
     return f"{round(v, digits):,.{digits}f}"
 
 
