@@ -46,16 +46,16 @@ _PASSES = 3  # 3 x 11 = 33 >= 32 bits of a float32 key
 
 
 @njit(**_OPTIONS)
-def _sorted_order(x: np.ndarray, f32: np.ndarray, order: np.ndarray, order2: np.ndarray,
-                  keys: np.ndarray, keys2: np.ndarray,
-                  hist: np.ndarray) -> np.ndarray:  # pragma: no cover
-    """Ascending order of the non-negative integers ``x``; returns the buffer holding the
-    sorted 32-bit keys (``keys`` or ``keys2``), ``order`` holding the order.
+def _sorted_order(x: np.ndarray, f32: np.ndarray, order: np.ndarray, packed: np.ndarray,
+                  packed2: np.ndarray, hist: np.ndarray) -> None:  # pragma: no cover
+    """Ascending order of the non-negative integers ``x`` into ``order``; ``packed`` ends
+    holding the sorted 32-bit keys in its high halves.
 
     Rounding to float32 keeps the order (it is monotone), so a radix sort of the float32 bit
     patterns, less the smallest, orders ``x`` up to runs of equal float32 keys; each such run
-    (rare and short: float32 resolves 6e-8 of a value) is then sorted by ``x`` itself. The
-    result is the exact ascending order of ``x``.
+    (rare and short: float32 resolves 6e-8 of a value) is then sorted by ``x`` itself. Each key
+    is packed with its position into one 64-bit word (key high, position low), so that a pass
+    moves one array. The result is the exact ascending order of ``x``.
     """
     m = x.size
     bits = f32.view(np.uint32)
@@ -75,41 +75,42 @@ def _sorted_order(x: np.ndarray, f32: np.ndarray, order: np.ndarray, order2: np.
         passes += 1
         span >>= np.uint32(_BITS)
     hist[:passes, :] = 0
-    digit = np.uint32(_BINS - 1)
+    digit = np.uint64(_BINS - 1)
+    high = np.uint64(32)
     for i in range(m):
-        k = bits[i] - lo
-        keys[i] = k
-        order[i] = i
+        v = (np.uint64(bits[i] - lo) << high) | np.uint64(i)
+        packed[i] = v
         for p in range(passes):
-            hist[p, (k >> np.uint32(p * _BITS)) & digit] += 1
-    src_k, dst_k, src_o, dst_o = keys, keys2, order, order2
+            hist[p, (v >> (high + np.uint64(p * _BITS))) & digit] += 1
+    src, dst = packed, packed2
     for p in range(passes):
         total = 0
         for b in range(_BINS):
             c = hist[p, b]
             hist[p, b] = total
             total += c
-        shift = np.uint32(p * _BITS)
+        shift = high + np.uint64(p * _BITS)
         for i in range(m):
-            k = src_k[i]
-            b = (k >> shift) & digit
+            v = src[i]
+            b = (v >> shift) & digit
             pos = hist[p, b]
             hist[p, b] = pos + 1
-            dst_k[pos] = k
-            dst_o[pos] = src_o[i]
-        src_k, dst_k = dst_k, src_k
-        src_o, dst_o = dst_o, src_o
+            dst[pos] = v
+        src, dst = dst, src
     if passes % 2 == 1:
         for i in range(m):
-            order[i] = src_o[i]
-    # runs of equal float32 keys: insertion sort by the doubles
+            packed[i] = src[i]
+    low = np.uint64(0xFFFFFFFF)
+    for i in range(m):
+        order[i] = np.int64(packed[i] & low)
+    # runs of equal float32 keys: insertion sort by the integers
     i = 0
     while i < m - 1:
-        if src_k[i + 1] != src_k[i]:
+        if (packed[i + 1] >> high) != (packed[i] >> high):
             i += 1
             continue
         j = i + 1
-        while j < m and src_k[j] == src_k[i]:
+        while j < m and (packed[j] >> high) == (packed[i] >> high):
             j += 1
         for a in range(i + 1, j):
             o = order[a]
@@ -120,24 +121,24 @@ def _sorted_order(x: np.ndarray, f32: np.ndarray, order: np.ndarray, order2: np.
                 b -= 1
             order[b + 1] = o
         i = j
-    return src_k
 
 
 @njit(**_OPTIONS)
 def _rank_pass(x: np.ndarray, community: np.ndarray, row: np.ndarray, write: bool,
-               f32: np.ndarray, order: np.ndarray, order2: np.ndarray, keys: np.ndarray,
-               keys2: np.ndarray, hist: np.ndarray) -> tuple[float, float]:  # pragma: no cover
+               f32: np.ndarray, order: np.ndarray, packed: np.ndarray, packed2: np.ndarray,
+               hist: np.ndarray) -> tuple[float, float]:  # pragma: no cover
     """Centred average ranks ``r`` of the integers ``x`` (into ``row`` when ``write``): returns
     ``(sum r^2, sum r * community)``."""
     m = x.size
-    sorted_keys = _sorted_order(x, f32, order, order2, keys, keys2, hist)
+    _sorted_order(x, f32, order, packed, packed2, hist)
+    high = np.uint64(32)
     centre = (m + 1) / 2.0
     ss = 0.0
     dot = 0.0
     i = 0
     while i < m:
         j = i + 1
-        if j < m and sorted_keys[j] == sorted_keys[i]:  # equal integers have equal float32
+        if j < m and (packed[j] >> high) == (packed[i] >> high):  # equal integers: equal keys
             v = x[order[i]]
             while j < m and x[order[j]] == v:
                 j += 1
@@ -213,9 +214,8 @@ def gray_rows(terms: np.ndarray, start: int, stop: int, max_size: int, ranks: bo
         own = np.empty(m)
         f32 = np.empty(m, dtype=np.float32)
         order = np.empty(m, dtype=np.int64)
-        order2 = np.empty(m, dtype=np.int64)
-        keys = np.empty(m, dtype=np.uint32)
-        keys2 = np.empty(m, dtype=np.uint32)
+        packed = np.empty(m, dtype=np.uint64)
+        packed2 = np.empty(m, dtype=np.uint64)
         hist = np.empty((_PASSES, _BINS), dtype=np.int64)
         mask = q * PIECE ^ ((q * PIECE) >> 1)
         for v in range(p):
@@ -244,8 +244,8 @@ def gray_rows(terms: np.ndarray, start: int, stop: int, max_size: int, ranks: bo
             sizes[slot] = size
             row = rows[slot] if write else own
             if ranks:
-                ss, dot = _rank_pass(sums, community, row, write, f32, order, order2, keys,
-                                     keys2, hist)
+                ss, dot = _rank_pass(sums, community, row, write, f32, order, packed,
+                                     packed2, hist)
             else:
                 ss, dot = _distance_pass(sums, community, row, write)
             scale = 1.0 / np.sqrt(ss) if ss > 0 else 0.0
@@ -269,12 +269,11 @@ def mask_rows(terms: np.ndarray, members: np.ndarray, ranks: bool, community: np
         if ranks:
             f32 = np.empty(m, dtype=np.float32)
             order = np.empty(m, dtype=np.int64)
-            order2 = np.empty(m, dtype=np.int64)
-            keys = np.empty(m, dtype=np.uint32)
-            keys2 = np.empty(m, dtype=np.uint32)
+            packed = np.empty(m, dtype=np.uint64)
+            packed2 = np.empty(m, dtype=np.uint64)
             hist = np.empty((_PASSES, _BINS), dtype=np.int64)
-            ss, dot = _rank_pass(sums, community, rows[s], True, f32, order, order2, keys,
-                                 keys2, hist)
+            ss, dot = _rank_pass(sums, community, rows[s], True, f32, order, packed, packed2,
+                                 hist)
         else:
             ss, dot = _distance_pass(sums, community, rows[s], True)
         scale = 1.0 / np.sqrt(ss) if ss > 0 else 0.0
