@@ -15,6 +15,8 @@ draws its figures with these same functions.
 - Hypotheses: :func:`hypotheses`; drawn from a tidy table ahead of its stage: :func:`partition`.
 - Ranking: :func:`ranking` (variables ranked against turnover), :func:`turnover_curves` (the
   fitted turnover functions, steepest stretch marked).
+- Soil and water: :func:`texture_triangle` (sites on the soil texture triangle over the
+  class boundaries); :func:`quotient_map` (sites on a map by exceedance of screening values).
 - :func:`house_style`: the house style as a ``with`` block, to restyle or save a figure.
 
 No pyplot is used: figures are built on :class:`matplotlib.figure.Figure` directly, so nothing
@@ -26,6 +28,7 @@ from ._hypotheses import hypotheses, partition
 from ._matrix import correlogram, distance_decay
 from ._ordination import arrows, centroids, legend, sites, taxa
 from ._ranking import ranking, turnover_curves
+from ._soil import quotient_map, texture_triangle
 from ._style import house_style
 from ._surfaces import shepard, surface
 
@@ -39,10 +42,12 @@ __all__ = [
     "hypotheses",
     "legend",
     "partition",
+    "quotient_map",
     "ranking",
     "shepard",
     "sites",
     "surface",
     "taxa",
+    "texture_triangle",
     "turnover_curves",
 ]
