@@ -6,16 +6,17 @@ command line start fast even though the stages pull in geopandas, statsmodels an
 Stages, one subpackage each, in the order data flows through them; each imports only from the
 stages before it, and the analysis stages in braces never import each other::
 
-    data -> distance -> ordination -> permutation -> {fitting, matrix, partition} -> plot
-         -> report
+    data -> distance -> ordination -> permutation -> {fitting, matrix, partition} -> ranking
+         -> plot -> report
 
 ``data`` reads and checks the survey; ``distance`` builds dissimilarities and distances;
 ``ordination`` gives site scores (PCoA, NMDS, PCA); ``permutation`` is the one engine behind
 every permutation test; ``fitting`` puts environmental variables onto ordination space;
 ``matrix`` holds the Mantel family; ``partition`` separates space from environment on the raw
-data (dbRDA, forward selection, spatial eigenvectors, variation partitioning); ``plot`` draws
-figures from result objects; ``report`` runs a project and writes its folder. ``gradients.cli``
-parses the command line and calls ``report``.
+data (dbRDA, forward selection, spatial eigenvectors, variation partitioning); ``ranking``
+weighs the variables against each other (best subsets, turnover models, one ranking table);
+``plot`` draws figures from result objects; ``report`` runs a project and writes its folder.
+``gradients.cli`` parses the command line and calls ``report``.
 """
 
 from __future__ import annotations
@@ -77,6 +78,10 @@ _EXPORTS: dict[str, str] = {
     "ForwardSelectionResult": "partition",
     "SpatialEigenvectorsResult": "partition",
     "VariationPartitionResult": "partition",
+    # ranking
+    "subset_search": "ranking",
+    "turnover_model": "ranking",
+    "rank_variables": "ranking",
     # report
     "load_project": "report",
     "init_project": "report",

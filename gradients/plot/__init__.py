@@ -12,8 +12,9 @@ draws its figures with these same functions.
   :func:`surface` (a fitted surface as contours); :func:`shepard` (the Shepard diagram of an
   NMDS).
 - Matrix tests: :func:`correlogram` (Mantel correlogram), :func:`distance_decay`.
-- Hypotheses: :func:`hypotheses`; drawn from tidy tables ahead of their stage:
-  :func:`ranking`, :func:`turnover_curves`.
+- Hypotheses: :func:`hypotheses`.
+- Ranking: :func:`ranking` (variables ranked against turnover), :func:`turnover_curves` (the
+  fitted turnover functions, steepest stretch marked).
 - Space and environment: :func:`partition` (the fractions of a variation partitioning, one
   bar), :func:`spatial_eigenvector_map` (spatial eigenvectors over the sites).
 - Soil and water: :func:`texture_triangle` (sites on the soil texture triangle over the
@@ -25,10 +26,11 @@ opens a window and no global matplotlib state changes.
 """
 
 from ._biplot import biplot
-from ._hypotheses import hypotheses, ranking, turnover_curves
+from ._hypotheses import hypotheses
 from ._matrix import correlogram, distance_decay
 from ._ordination import arrows, centroids, legend, sites, taxa
 from ._partition import partition, spatial_eigenvector_map
+from ._ranking import ranking, turnover_curves
 from ._soil import quotient_map, texture_triangle
 from ._style import house_style
 from ._surfaces import shepard, surface

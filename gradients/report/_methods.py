@@ -37,8 +37,8 @@ def methods_paragraph(*, version: str, sentences: list[str], decisions: list[str
         parts = ", ".join(f"{k} ({v})" for k, v in counts.items())
         first.append(f"Sites per {name}: {parts}.")
     first += sentences
-    perm = (f"All permutation tests used {n_resamples} permutations (p = (b + 1)/(P + 1), "
-            f"Phipson & Smyth 2010) with random seed {seed}")
+    perm = (f"Permutation tests used {n_resamples} permutations unless stated otherwise "
+            f"(p = (b + 1)/(P + 1), Phipson & Smyth 2010) with random seed {seed}")
     perm += f", permuting sites within {strata}." if strata else "."
     first.append(perm)
     return " ".join(first) + "\n\n" + " ".join(CAUTIONS) + "\n"

@@ -168,6 +168,18 @@ SCHEMA: dict[str, dict[str, Key]] = {
                          "community between the hypotheses' variables and spatial eigenvectors "
                          "(needs locations)."),
         "verdicts": Key("bool", True, "The decision table with one verdict per hypothesis."),
+        "ranking": Key("bool", True, "Rank the numeric variables against community turnover "
+                       "(best subsets, turnover model, one ranking table)."),
+    },
+    "ranking": {
+        "variables": Key("names", (), "Candidate variables of the ranking (default: every "
+                         "numeric variable); a composition's parts are listed together."),
+        "permutations": Key("int", 199, "Permutations of the subset search, forward "
+                            "selection, vector fits and Mantel tests of the ranking (each "
+                            "repeats a whole search).", minimum=1),
+        "turnover_permutations": Key("int", 99, "Permutations per predictor of the turnover "
+                                     "model (each refits the model); 0 skips its tests.",
+                                     minimum=0),
     },
     "partition": {
         "selection_level": Key("float", 0.05, "Significance level of the forward selection of "

@@ -8,8 +8,9 @@ adjustment across hypotheses, correlations among the predictor matrices, and the
 hypothesis (see :mod:`.verdicts`). One module per stage: :mod:`.community` (community,
 environment, geography), :mod:`.ordination` (ordination and fitting), :mod:`.matrix` (the
 Mantel family, regression, correlogram, distance decay), :mod:`.partition` (space and
-environment on the raw data), :mod:`.soil` (units, guideline quotients against a screening
-table, texture classes) and :mod:`.verdicts`; the demo's
+environment on the raw data), :mod:`.ranking` (variables ranked against turnover),
+:mod:`.soil` (units, guideline quotients against a screening table, texture classes) and
+:mod:`.verdicts`; the demo's
 planted-truth step lives with the demo (``gradients.report._demo_truth``, beside the demo code).
 
 :data:`STEPS` is the one list :func:`~gradients.report._pipeline.run_steps` runs: each step
@@ -39,6 +40,7 @@ from .ordination import (
     vectors_step,
 )
 from .partition import partition_step
+from .ranking import ranking_step
 from .soil import screening_step, texture_step, units_step
 from .verdicts import verdicts_step
 
@@ -62,14 +64,15 @@ STEPS: tuple[Step, ...] = (
     Step("correlogram", correlogram_step, "analyses.correlogram"),
     Step("distance_decay", distance_decay_step, "analyses.distance_decay"),
     Step("partition", partition_step, "analyses.partition"),
+    Step("ranking", ranking_step, "analyses.ranking"),
     Step("verdicts", verdicts_step, "analyses.verdicts"),
     Step("planted_truth", planted_truth_step),
     Step("surfaces", surfaces_step, "analyses.surfaces"),
 )
 
 #: Order of the sections in the report (steps run in dependency order, which differs).
-SECTION_ORDER = ("verdicts", "planted_truth", "ordination", "vectors", "surfaces", "factors",
-                 "mantel", "partial_mantel", "regression", "partition", "correlogram",
+SECTION_ORDER = ("verdicts", "planted_truth", "ranking", "ordination", "vectors", "surfaces",
+                 "factors", "mantel", "partial_mantel", "regression", "partition", "correlogram",
                  "distance_decay", "texture", "screening")
 
 
