@@ -41,7 +41,8 @@ def one(rng: np.random.Generator, n: int, site_sd: float, resamples: int) -> dic
     t = res.table
     return {"slope": float(t.loc["slope", "lower"] <= SLOPE <= t.loc["slope", "upper"]),
             "intercept": float(t.loc["intercept", "lower"] <= INTERCEPT
-                               <= t.loc["intercept", "upper"])}
+                               <= t.loc["intercept", "upper"]),
+            "estimate": res.slope, "bootstrap sd": float(res.bootstrap_distribution[:, 0].std())}
 
 
 def simulate(budget: Budget, seed: int) -> dict[str, pd.DataFrame]:
@@ -52,13 +53,16 @@ def simulate(budget: Budget, seed: int) -> dict[str, pd.DataFrame]:
             c = collect(budget.datasets,
                         lambda rng, n=n, s=site_sd: one(rng, n, s, budget.permutations),
                         cell_rng(seed, NAME, scenario, n))
+            # the bootstrap's standard error against the spread of the estimates themselves
+            ratio = float(np.mean(c.pop("bootstrap sd")) / np.std(c.pop("estimate"), ddof=1))
             for what, hits in c.items():
                 k = int(hits.sum())
                 lo, hi = clopper_pearson(k, hits.size)
                 rows.append({"interval": what, "scenario": scenario, "n": n,
                              "datasets": hits.size, "bootstrap samples": budget.permutations,
                              "coverage": k / hits.size, "lower": lo, "upper": hi,
-                             "inside": bool(lo <= LEVEL <= hi)})
+                             "inside": bool(lo <= LEVEL <= hi),
+                             "bootstrap se / sd of slopes": ratio if what == "slope" else np.nan})
     table = pd.DataFrame(rows)
     return {"coverage": table}
 
