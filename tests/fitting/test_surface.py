@@ -6,8 +6,8 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 import pytest
-import statsmodels.api as sm
 import scipy.linalg
+import statsmodels.api as sm
 from scipy import stats
 from scipy.spatial import Delaunay
 from scipy.spatial.distance import cdist
