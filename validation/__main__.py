@@ -152,6 +152,9 @@ def main(argv: list[str] | None = None) -> int:
                              "permutations": f"{budget.permutations}"
                              + (f" (surfaces {budget.heavy_permutations})" if heavy else ""),
                              "date": time.strftime("%Y-%m-%d")}
+                if name == "decay":  # no test and no power: data sets and bootstrap samples
+                    log[name].update(datasets=f"{budget.datasets}",
+                                     permutations=f"{budget.permutations} bootstrap samples")
                 log["machine"] = (f"{platform.machine()}, {os.cpu_count()} cores shared with "
                                   f"other work, Python {platform.python_version()}")
                 log_path.parent.mkdir(parents=True, exist_ok=True)

@@ -123,8 +123,9 @@ def render(tables: dict[str, pd.DataFrame]) -> FamilyResult:
     res.blocks["partial:null"] = null_markdown(res.tables["null"], keys=("scenario", "test"))
     res.blocks["partial:caution"] = null_markdown(res.tables["caution"],
                                                   keys=("scenario", "test"))
+    short = res.tables["null"].replace({"scenario": {POWER_SCENARIO: "confounded"}})
     res.figures["partial_null"] = null_figure(
-        res.tables["null"], panel=("scenario", "test"), columns=2,
+        short, panel=("scenario", "test"), columns=2,
         title="Partial Mantel tests: rejection rate under the null, by permutation method")
     res.figures["partial_power"] = power_figure(
         res.tables["power"], columns=2,
