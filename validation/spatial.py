@@ -167,7 +167,9 @@ def figure(null: pd.DataFrame, alpha: float = 0.05) -> Figure:
                 y = part["rate"].to_numpy()
                 err = np.vstack([y - part["lower"].to_numpy(), part["upper"].to_numpy() - y])
                 label = reading if title.startswith("Both") else f"{reading}, {scenario}"
-                ax.errorbar(x, y, yerr=err, color=colour, ls=style, marker=marker, ms=4,
+                if scenario == "y only":  # a shape of its own (hollow marks mean "not
+                    marker = group_style(colour_index + 2)[1]  # significant" in the house style)
+                ax.errorbar(x, y, yerr=err, color=colour, ls=style, marker=marker, ms=4.5,
                             lw=1.3, capsize=0, label=label)
             ax.set_xlabel("range of the exponential covariance")
             ax.set_xticks(list(RANGES))
