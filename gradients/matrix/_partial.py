@@ -109,7 +109,7 @@ def partial_mantel(
     z: MatrixLike | Sequence[MatrixLike] | Mapping[str, MatrixLike],
     *,
     method: str = "pearson",
-    permute: str = "raw",
+    permute: str = "residuals",
     alternative: str = "greater",
     n_resamples: int = 9999,
     rng: RNGLike = None,
@@ -131,10 +131,15 @@ def partial_mantel(
         and ``y`` are regressed on all of them together.
     method : {'pearson', 'spearman'}, default 'pearson'
         Spearman ranks each matrix's entries first.
-    permute : {'raw', 'residuals'}, default 'raw'
-        What is permuted (see Notes): 'raw' permutes ``x`` itself (Mantel's approach, as in
-        Smouse, Long & Sokal 1986); 'residuals' permutes the residuals of ``x`` on ``z``, the
-        null model (Freedman & Lane 1983; method 2 of Legendre 2000).
+    permute : {'residuals', 'raw'}, default 'residuals'
+        What is permuted (see Notes): 'residuals' permutes the residuals of ``x`` on ``z``,
+        the null model (Freedman & Lane 1983; method 2 of Legendre 2000); 'raw' permutes
+        ``x`` itself (Mantel's approach, as in Smouse, Long & Sokal 1986). The default follows
+        Legendre's recommendation and the suite's own simulations (``docs/validation.md``):
+        residuals held their level in every case simulated, raw data did not when the control
+        was correlated with ``x`` and skewed or outlying (see Notes), and both had the same
+        power.
+        (Before this default changed, 'raw' was the default: pass it to keep old results.)
     alternative, n_resamples, rng, strata, scheme, n_jobs, early_stop, spatial_null, \
 n_surrogates
         As in :func:`mantel`. The spatial null randomises ``x``, keeping ``y`` and ``z``.
@@ -168,6 +173,15 @@ n_surrogates
 
     Legendre's third method (correlating residualised matrices and permuting one of them,
     without refitting) is not offered; the fourth (residuals of the full model) is not either.
+
+    In the suite's validation (``python -m validation --only partial``; 500 null data sets
+    per case, built at the level of the matrices, 10 to 100 sites, normal, skewed and
+    outlying data, the control unrelated, driving ``y`` only, or correlated 0.8 with ``x``),
+    residual permutation stayed inside the 99 % binomial interval of both levels in every
+    case. Raw permutation did not when the control was correlated with ``x``: with an
+    outlier in the control it was conservative at every number of sites (rejection rates
+    0.020-0.030 at 0.05), and at 10 sites with skewed data too liberal at 0.01 (0.034). Power
+    was the same. Hence the default.
 
     Both are evaluated by one compiled pass: with ``e_y`` the residuals of ``y`` and ``Q`` an
     orthonormal basis of the centred controls, the statistic of a permuted vector ``v`` is

@@ -57,10 +57,17 @@ def _structure_notes(check: pd.DataFrame) -> list[str]:
         ]
     if structured:
         return [f"Only {', '.join(structured)} is spatially structured ("
-                f"{'; '.join(say(s) for s in structured)}); the plain permutation p-value is "
-                "less exposed to spatial autocorrelation, pvalue_spatial is given as a check."]
+                f"{'; '.join(say(s) for s in structured)}): autocorrelation in one matrix "
+                "alone does not inflate the plain test, so read pvalue, with pvalue_spatial "
+                "as a check. " + _MISSED]
     return ["Neither matrix shows spatial structure (Mantel correlation with distance between "
-            f"sites, p > {SPATIAL_ALPHA}); pvalue_spatial is given as a check."]
+            f"sites, p > {SPATIAL_ALPHA}): read pvalue, with pvalue_spatial as a check. "
+            + _MISSED]
+
+
+#: The limit of the check, said where it finds at most one matrix structured.
+_MISSED = ("The check can miss weak or short-range structure: where pvalue_spatial is above "
+           "your level and pvalue is not, treat the association as possibly spatial.")
 
 
 NOT_CHECKED = (

@@ -36,7 +36,8 @@ TIES = ("primary", "secondary")
 AGREE_STRESS = 1e-3
 AGREE_DISPARITY = 1e-3
 
-# stress-1 rule of thumb, Clarke (1993) (from memory): (upper bound, words)
+# stress-1 rule of thumb, Clarke (1993) (from memory): (upper bound, words). The 0.2-0.3 class
+# ("poor") and the advice to cross-check with another ordination are our own, not Clarke's.
 _VERDICTS = (
     (0.05, "excellent: an ordination with little prospect of misinterpretation (stress < 0.05)"),
     (0.10, "good: no real risk of drawing false inferences (0.05 <= stress < 0.10)"),
@@ -53,7 +54,11 @@ def stress_verdict(stress: float) -> str:
     """Words for a stress-1 value, after the rule of thumb of Clarke (1993).
 
     < 0.05 excellent, < 0.10 good, < 0.20 usable with care, < 0.30 poor, otherwise close to
-    arbitrary (thresholds from memory of Clarke 1993, Aust. J. Ecol. 18, 117–143).
+    arbitrary. Source of the thresholds: Clarke (1993), Aust. J. Ecol. 18, 117–143 (from
+    memory), whose rule of thumb reads stress below 0.05, 0.1 and 0.2 and above 0.3. The class
+    between 0.2 and 0.3 and its name *poor* are our own (the rule of thumb, as recalled, gives
+    no class there), and so is the advice in the two middle classes to check the picture
+    against another ordination. A boundary value belongs to the worse class.
     """
     for bound, words in _VERDICTS:
         if stress < bound:

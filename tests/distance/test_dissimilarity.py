@@ -10,7 +10,7 @@ import pytest
 from scipy.spatial.distance import pdist
 
 from gradients import InputError
-from gradients.distance import METRICS, DistanceMatrix, dissimilarity
+from gradients.distance import METRICS, DistanceMatrix, dissimilarity, gower_distance
 
 
 def _table(seed: int = 0, n: int = 25, p: int = 15, lam: float = 1.2) -> pd.DataFrame:
@@ -199,6 +199,64 @@ def test_gower_hand_computation():
     np.testing.assert_allclose(g.condensed, d.condensed, rtol=1e-12)
 
 
+def _gower_table(seed, n=18):
+    rng = np.random.default_rng(seed)
+    return pd.DataFrame({
+        "ph": rng.normal(6.5, 0.8, n),
+        "depth": rng.gamma(2.0, 1.5, n),
+        "soil": pd.array(rng.choice(["clay", "loam", "sand", "peat"], n), dtype="string"),
+        "grazed": rng.random(n) < 0.4,
+        "fish": rng.random(n) < 0.5,
+    }, index=[f"g{i:02d}" for i in range(n)])
+
+
+def test_gower_special_cases_equal_scipy_coefficients():
+    # Gower (1971) notes that his coefficient contains familiar ones as special cases (from
+    # memory of the paper's discussion; each identity follows from the definition): with only
+    # quantitative variables 1 - S is the range-scaled Manhattan distance divided by the
+    # number of variables (scipy 'cityblock' on x / R_k, or weighted 'minkowski' p = 1 over the
+    # sum of weights); with only dichotomous variables (pairs of absences ignored) it is
+    # Jaccard's dissimilarity (scipy 'jaccard'); with only qualitative variables it is the
+    # share of mismatches (scipy 'hamming' on the codes).
+    t = _gower_table(3)
+    quant = t[["ph", "depth"]]
+    scaled = (quant / (quant.max() - quant.min())).to_numpy()
+    np.testing.assert_allclose(gower_distance(quant).condensed,
+                               pdist(scaled, "cityblock") / 2, rtol=1e-12)
+    w = {"ph": 3.0, "depth": 1.0}
+    np.testing.assert_allclose(gower_distance(quant, weights=w).condensed,
+                               pdist(scaled, "minkowski", p=1, w=[3.0, 1.0]) / 4, rtol=1e-12)
+    binary = t[["grazed", "fish"]]
+    both_absent = pdist(binary.to_numpy(), lambda a, b: not (a.any() or b.any())).astype(bool)
+    jac = pdist(binary.to_numpy(), "jaccard")
+    gd = gower_distance(binary, empty="max").condensed
+    np.testing.assert_allclose(gd[~both_absent], jac[~both_absent], rtol=1e-12)
+    assert np.all(gd[both_absent] == 1.0)  # no comparison at all: the `empty` choice
+    codes = t[["soil"]].assign(ph=pd.cut(t["ph"], 3, labels=["lo", "mid", "hi"]).astype(str))
+    numeric = np.column_stack([pd.factorize(codes[c])[0] for c in codes.columns])
+    np.testing.assert_allclose(gower_distance(codes).condensed, pdist(numeric, "hamming"),
+                               rtol=1e-12)
+
+
+@pytest.mark.parametrize("seed", [0, 1, 2])
+def test_gower_similarity_is_positive_semidefinite_without_missing_values(seed):
+    # Gower (1971), the result stated in its abstract: the matrix of S_ij (S_ii = 1) is
+    # positive semi-definite except possibly when there are missing values, so sqrt(1 - S)
+    # is Euclidean. Checked on tables of every variable type with numpy's eigenvalues
+    # (tolerance 1e-10 of the largest).
+    t = _gower_table(seed, n=25)
+    d = gower_distance(t)
+    sim = 1 - d.square()
+    vals = np.linalg.eigvalsh(sim)
+    assert vals.min() >= -1e-10 * vals.max()
+    # hence the doubly centred -0.5 (sqrt(1 - S))^2 = 0.5 (S - 1) is PSD too (Gower 1966)
+    n = len(t)
+    h = np.eye(n) - 1 / n
+    g = h @ (0.5 * (sim - 1)) @ h
+    gv = np.linalg.eigvalsh(g)
+    assert gv.min() >= -1e-10 * gv.max()
+
+
 def test_gower_pair_with_nothing_to_compare():
     t = pd.DataFrame({"x": [1.0, np.nan, 2.0], "y": [np.nan, 5.0, 6.0]}, index=list("pqr"))
     with pytest.raises(InputError, match=r"\('p', 'q'\)"):
@@ -334,6 +392,33 @@ def test_extended_equals_floyd_warshall_on_saturated_pairs():
         paths = np.minimum(paths, paths[:, [k]] + paths[[k], :])
     expect = np.where(sat, paths, plain)
     np.testing.assert_allclose(dissimilarity(t, extended=True).square(), expect, rtol=1e-12)
+
+
+@pytest.mark.parametrize("seed", [4, 5, 6])
+@pytest.mark.parametrize("method", ["FW", "BF", "J"])
+def test_extended_equals_scipy_csgraph_shortest_paths(seed, method):
+    # Reference library: scipy.sparse.csgraph.shortest_path by Floyd-Warshall, Bellman-Ford
+    # and Johnson (the suite calls Dijkstra) on the graph of unsaturated pairs (De'ath 1999):
+    # saturated pairs take the shortest path length, the others keep their own value.
+    from scipy.sparse.csgraph import shortest_path
+
+    rng = np.random.default_rng(seed)
+    n, width = 24, 6
+    x = np.zeros((n, 3 * n))
+    order = rng.permutation(n)  # sites along a long gradient, in random row order
+    for row, pos in enumerate(order):
+        x[row, 2 * pos : 2 * pos + width] = rng.integers(1, 9, size=width)
+    t = pd.DataFrame(x, index=[f"e{i:02d}" for i in range(n)])
+    for metric in ("bray-curtis", "jaccard"):
+        plain = dissimilarity(t, metric).square()
+        sat = plain >= 1 - 1e-10
+        np.fill_diagonal(sat, False)
+        assert sat.sum() > n  # a long gradient: many pairs share no taxa
+        graph = np.where(sat, 0.0, plain)  # csgraph reads 0 as "no edge"
+        paths = shortest_path(graph, method=method, directed=False)
+        expect = np.where(sat, paths, plain)
+        np.testing.assert_allclose(dissimilarity(t, metric, extended=True).square(), expect,
+                                   rtol=1e-12)
 
 
 @pytest.mark.parametrize("metric", [m for m in METRICS if METRICS[m].upper is not None])

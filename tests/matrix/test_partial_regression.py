@@ -46,6 +46,25 @@ def test_partial_statistic_equals_formula_and_statsmodels_residual_correlation()
     assert res.r_xy == pytest.approx(rxy, abs=1e-12)
 
 
+def test_default_permutes_residuals_and_explicit_raw_keeps_its_old_results():
+    # The default follows the validation (docs/validation.md, partial Mantel tests): residuals
+    # of the reduced model (Legendre 2000, method 2). An explicit permute='raw' gives exactly
+    # what the old default gave: these numbers were recorded with the old default
+    # (partial_mantel(x, y, z, n_resamples=99, rng=0)) before it changed.
+    x, y, z, _ = _matrices(20, 1)
+    default = partial_mantel(x, y, z, n_resamples=99, rng=0)
+    explicit = partial_mantel(x, y, z, permute="residuals", n_resamples=99, rng=0)
+    assert default.permute == "residuals"
+    np.testing.assert_array_equal(default.null_distribution, explicit.null_distribution)
+    assert default.pvalue == explicit.pvalue == 0.98
+    raw = partial_mantel(x, y, z, permute="raw", n_resamples=99, rng=0)
+    assert raw.pvalue == 1.0
+    np.testing.assert_allclose(raw.null_distribution[:3], [-0.1013556350320977,
+                                                           0.18195597311975492,
+                                                           -0.13475136589308745], rtol=1e-12)
+    assert float(raw.null_distribution.sum()) == pytest.approx(0.48602320682671124, rel=1e-12)
+
+
 def test_several_controls_use_residuals_on_all_of_them():
     # Reference: correlation of statsmodels OLS residuals of x and y on both controls.
     x, y, z, w = _matrices(18, 2)

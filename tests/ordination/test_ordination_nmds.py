@@ -176,13 +176,20 @@ def test_init_aligned_by_label():
 
 def test_stress_verdicts_follow_clarke_1993():
     # Clarke (1993) rule of thumb, from memory: <0.05 excellent, <0.1 good, <0.2 usable,
-    # >0.3 close to arbitrary; 0.2-0.3 we call poor
+    # >0.3 close to arbitrary; the class 0.2-0.3 ("poor") is our own, marked as such in the
+    # docstring. Every bound is checked from both sides.
     assert stress_verdict(0.03).startswith("excellent")
     assert stress_verdict(0.07).startswith("good")
     assert stress_verdict(0.15).startswith("usable with care")
     assert stress_verdict(0.25).startswith("poor")
     assert stress_verdict(0.35).startswith("close to arbitrary")
     assert stress_verdict(0.05).startswith("good")  # boundaries belong to the worse class
+    for bound, below, at in ((0.05, "excellent", "good"), (0.10, "good", "usable with care"),
+                             (0.20, "usable with care", "poor"),
+                             (0.30, "poor", "close to arbitrary")):
+        assert stress_verdict(np.nextafter(bound, 0)).startswith(below)
+        assert stress_verdict(bound).startswith(at)
+    assert "our own" in stress_verdict.__doc__
 
 
 def test_input_errors():

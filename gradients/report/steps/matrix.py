@@ -101,12 +101,17 @@ def _spatial_check(sec: Section, results: dict[str, Any], label: str) -> None:
         note += (f"Both matrices are spatially structured for {', '.join(both)}: there simple "
                  "and partial Mantel tests reject a true null too often (Guillot & Rousset "
                  "2013), so rely on pvalue_spatial rather than pvalue. In the other tests at "
-                 "most one matrix is structured, the plain p-value is less exposed to spatial "
-                 "autocorrelation, and pvalue_spatial is given as a check.")
+                 "most one matrix is structured: autocorrelation in one matrix alone does not "
+                 "inflate the plain test, so read pvalue there, with pvalue_spatial as a "
+                 "check; where pvalue_spatial is above the level and pvalue is not, the "
+                 "association may still be spatial (the check can miss weak or short-range "
+                 "structure), and the caveats say so.")
     else:
-        note += ("In no test are both matrices spatially structured: the plain p-values are "
-                 "less exposed to spatial autocorrelation, and pvalue_spatial is given as a "
-                 "check.")
+        note += ("In no test are both matrices spatially structured: autocorrelation in one "
+                 "matrix alone does not inflate the plain test, so read pvalue, with "
+                 "pvalue_spatial as a check; where pvalue_spatial is above the level and "
+                 "pvalue is not, the association may still be spatial (the check can miss "
+                 "weak or short-range structure), and the caveats say so.")
     sec.notes.insert(0, note)
 
 
