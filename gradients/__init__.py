@@ -63,6 +63,9 @@ _EXPORTS: dict[str, str] = {
     "mantel_correlogram": "matrix",
     "matrix_regression": "matrix",
     "distance_decay": "matrix",
+    # groups (indicator taxa, site clustering)
+    "indicator_taxa": "groups",
+    "IndicatorTaxaResult": "groups",
     # report
     "load_project": "report",
     "init_project": "report",
