@@ -4,16 +4,18 @@ The one place users import from. Names are loaded on first use, so ``import grad
 command line start fast even though the stages pull in geopandas, statsmodels and numba.
 
 Stages, one subpackage each, in the order data flows through them; each imports only from the
-stages before it, and ``fitting`` and ``matrix`` never import each other::
+stages before it, and the analysis stages in braces never import each other::
 
-    data -> distance -> ordination -> permutation -> {fitting, matrix} -> plot -> report
+    data -> distance -> ordination -> permutation -> {fitting, matrix, partition} -> plot
+         -> report
 
 ``data`` reads and checks the survey; ``distance`` builds dissimilarities and distances;
 ``ordination`` gives site scores (PCoA, NMDS, PCA); ``permutation`` is the one engine behind
 every permutation test; ``fitting`` puts environmental variables onto ordination space;
-``matrix`` holds the Mantel family; ``plot`` draws figures from result objects; ``report`` runs
-a project and writes its folder. ``gradients.cli`` parses the command line and calls
-``report``.
+``matrix`` holds the Mantel family; ``partition`` separates space from environment on the raw
+data (dbRDA, spatial eigenvectors, variation partitioning); ``plot`` draws figures from result
+objects; ``report`` runs a project and writes its folder. ``gradients.cli`` parses the command
+line and calls ``report``.
 """
 
 from __future__ import annotations

@@ -1,5 +1,6 @@
 """Distance stage: dissimilarities, transforms, geographic distance, the DistanceMatrix type."""
 
+from ._centred import GowerMatrix, gower_centred, permuted_products, permuted_traces
 from ._dissimilarity import METRICS, dissimilarity, extend_dissimilarity, gower_distance
 from ._environment import environmental_distance
 from ._geographic import geographic_distance
@@ -9,13 +10,17 @@ from ._transforms import TransformResult, transform_community, transform_environ
 __all__ = [
     "METRICS",
     "DistanceMatrix",
+    "GowerMatrix",
     "TransformResult",
     "as_distance_matrix",
     "dissimilarity",
     "environmental_distance",
     "extend_dissimilarity",
     "geographic_distance",
+    "gower_centred",
     "gower_distance",
+    "permuted_products",
+    "permuted_traces",
     "transform_community",
     "transform_environment",
 ]

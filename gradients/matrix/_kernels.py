@@ -14,12 +14,10 @@ release the GIL and are cached on disk (``cache=True``) so that only the first r
 
 from __future__ import annotations
 
-import contextlib
-from collections.abc import Iterator
-
-import numba
 import numpy as np
 from numba import njit, prange
+
+from ..permutation._threads import numba_threads
 
 __all__ = [
     "class_sums",
@@ -30,20 +28,6 @@ __all__ = [
 ]
 
 _OPTIONS = {"cache": True, "nogil": True}
-
-
-# --------------------------------------------------------------------------- threads
-@contextlib.contextmanager
-def numba_threads(n_jobs: int) -> Iterator[int]:
-    """Run the kernels inside the block on ``n_jobs`` threads (-1: all), then restore."""
-    top = int(numba.config.NUMBA_NUM_THREADS)
-    want = top if n_jobs is None or n_jobs < 0 else max(1, min(int(n_jobs), top))
-    before = numba.get_num_threads()
-    numba.set_num_threads(want)
-    try:
-        yield want
-    finally:
-        numba.set_num_threads(before)
 
 
 # --------------------------------------------------------------------------- cross-products

@@ -14,6 +14,7 @@ import scipy.sparse.linalg
 from .._errors import InputError
 from .._result import ResultMixin
 from .._validation import check_choice
+from ..distance._centred import cailliez_constant, gower_centre, lingoes_constant
 from ..distance._matrix import DistanceMatrix, as_distance_matrix
 from ._common import axis_names, orient_columns
 from ._scores import taxon_scores
@@ -71,62 +72,6 @@ class PCoAResult(ResultMixin):
     def taxon_scores(self, community: pd.DataFrame) -> pd.DataFrame:
         """Weighted-average taxon scores on these axes; see :func:`taxon_scores`."""
         return taxon_scores(self, community)
-
-
-def gower_centre(a: np.ndarray) -> np.ndarray:
-    """Double-centre a symmetric matrix: ``(I - 11'/n) A (I - 11'/n)`` (Gower 1966)."""
-    a = np.asarray(a, dtype=np.float64)
-    row = a.mean(axis=1, keepdims=True)
-    col = a.mean(axis=0, keepdims=True)
-    return a - row - col + a.mean()
-
-
-def lingoes_constant(square: np.ndarray) -> float:
-    """Lingoes (1971) constant: minus the smallest eigenvalue of the Gower matrix (0 if none).
-
-    Replacing ``d`` by ``sqrt(d**2 + 2 c)`` for every pair of distinct sites adds ``c`` to every
-    non-trivial eigenvalue, so the smallest becomes 0 (Legendre & Legendre 2012, sect. 9.3.4).
-    """
-    smallest = float(np.linalg.eigvalsh(gower_centre(-0.5 * square**2))[0])
-    return max(-smallest, 0.0)
-
-
-def cailliez_constant(square: np.ndarray, *, dense_max: int = 400) -> float:
-    """Cailliez (1983) constant: the largest eigenvalue of the 2n x 2n block matrix.
-
-    ``[[0, 2 G1], [-I, -4 G2]]`` with ``G1`` the Gower-centred ``-d**2 / 2`` and ``G2`` the
-    Gower-centred ``-d / 2``. Adding it to every distance between distinct sites gives the
-    smallest constant that makes the matrix Euclidean (Cailliez 1983; Legendre & Legendre 2012,
-    sect. 9.3.4). Up to ``dense_max`` sites the block matrix is solved densely; beyond, its
-    eigenvalue of largest real part is found by Arnoldi iteration on products with the blocks
-    (:func:`scipy.sparse.linalg.eigs`), falling back to the dense solver if that fails.
-    """
-    n = square.shape[0]
-    g1 = gower_centre(-0.5 * square**2)
-    g2 = gower_centre(-0.5 * square)
-    if n > dense_max:
-        def matvec(z: np.ndarray) -> np.ndarray:
-            u, v = z[:n], z[n:]
-            return np.concatenate((2.0 * (g1 @ v), -u - 4.0 * (g2 @ v)))
-
-        op = scipy.sparse.linalg.LinearOperator((2 * n, 2 * n), matvec=matvec, dtype=np.float64)
-        start = np.random.default_rng(0).normal(size=2 * n)
-        try:
-            value = scipy.sparse.linalg.eigs(op, k=1, which="LR", v0=start,
-                                             return_eigenvectors=False)[0]
-            if abs(value.imag) <= 1e-8 * max(abs(value.real), 1.0):
-                return max(float(value.real), 0.0)
-        except scipy.sparse.linalg.ArpackNoConvergence:
-            pass
-    block = np.zeros((2 * n, 2 * n))
-    block[:n, n:] = 2.0 * g1
-    block[n:, :n] = -np.eye(n)
-    block[n:, n:] = -4.0 * g2
-    values = scipy.linalg.eigvals(block, overwrite_a=True, check_finite=False)
-    real = values[np.abs(values.imag) <= 1e-8 * np.maximum(np.abs(values.real), 1.0)].real
-    if real.size == 0:  # not expected: the largest eigenvalue is real (Cailliez 1983)
-        real = values.real
-    return max(float(real.max()), 0.0)
 
 
 def _check_dimensions(dimensions: object) -> int | None:
