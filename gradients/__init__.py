@@ -68,6 +68,8 @@ _EXPORTS: dict[str, str] = {
     # groups (indicator taxa, site clustering)
     "indicator_taxa": "groups",
     "IndicatorTaxaResult": "groups",
+    "cluster_sites": "groups",
+    "SiteClustersResult": "groups",
     # report
     "load_project": "report",
     "init_project": "report",

@@ -6,6 +6,13 @@ constrained to contiguous sites). Every permutation test goes through
 :mod:`gradients.permutation`.
 """
 
+from ._clusters import CLUSTER_METHODS, SiteClustersResult, cluster_sites
 from ._indicators import IndicatorTaxaResult, indicator_taxa
 
-__all__ = ["IndicatorTaxaResult", "indicator_taxa"]
+__all__ = [
+    "CLUSTER_METHODS",
+    "IndicatorTaxaResult",
+    "SiteClustersResult",
+    "cluster_sites",
+    "indicator_taxa",
+]
