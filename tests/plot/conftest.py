@@ -36,6 +36,7 @@ def demo() -> SimpleNamespace:
         surface=gradients.fit_surface(pcoa, env["Cu"], n_resamples=0),
         taxa=pcoa.taxon_scores(survey.community),
         correlogram=gradients.mantel_correlogram(d, geo, n_resamples=99, rng=1),
+        clusters=gradients.cluster_sites(d, k=3),
         decay=gradients.distance_decay(d, geo, rng=1),
         partial=gradients.partial_mantel(
             d,

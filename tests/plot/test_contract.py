@@ -51,6 +51,7 @@ def _calls(demo) -> dict[str, Callable[..., object]]:
         "hypotheses": lambda **kw: plot.hypotheses({"metals": demo.partial}, **kw),
         "ranking": lambda **kw: plot.ranking(RANKING, **kw),
         "partition": lambda **kw: plot.partition(FRACTIONS, **kw),
+        "dendrogram": lambda **kw: plot.dendrogram(demo.clusters, **kw),
     }
 
 
@@ -102,7 +103,8 @@ def test_makes_a_house_style_figure_without_axes(name, demo, no_files):
 
 
 @pytest.mark.parametrize("name", ["biplot", "surface", "shepard", "correlogram",
-                                  "distance_decay", "hypotheses", "ranking", "partition"])
+                                  "distance_decay", "hypotheses", "ranking", "partition",
+                                  "dendrogram"])
 def test_whole_figures_have_a_title_and_honour_figsize(name, demo):
     ax = _calls(demo)[name](figsize=(4.0, 3.0), title="My title")
     assert ax.get_title(loc="left") == "My title"
@@ -144,6 +146,8 @@ def test_results_of_the_wrong_kind_are_named(demo):
         plot.distance_decay(demo.correlogram)
     with pytest.raises(InputError, match="has no `statistic` and `pvalue`"):
         plot.hypotheses({"metals": demo.pcoa})
+    with pytest.raises(InputError, match="`result` must be the result of cluster_sites"):
+        plot.dendrogram(demo.pcoa)
 
 
 def test_reachable_from_the_package():
