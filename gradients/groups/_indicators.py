@@ -33,13 +33,10 @@ from .._validation import (
     seed_sequence,
 )
 from ..permutation import ADJUST_METHODS, adjust_pvalues, permutation_plan, permutation_test
+from ..permutation._threads import numba_threads
+from ._indicator_kernels import largest_indval
 
 __all__ = ["IndicatorTaxaResult", "indicator_taxa"]
-
-#: Rearranged site orders handled at once inside a batch: bounds the one-hot array
-#: (orders x classes x sites) to about 32 MB.
-_CELLS_PER_CHUNK = 4_000_000
-
 
 @dataclass(frozen=True, repr=False)
 class IndicatorTaxaResult(ResultMixin):
@@ -258,7 +255,8 @@ def indicator_taxa(
         indicator taxa is a screening of many taxa, for which the false discovery rate is the
         usual guard; 'holm' controls the family-wise error rate instead.
     n_jobs : int, default 1
-        Workers evaluating batches of rearrangements (the result does not depend on it).
+        Threads of the compiled kernel that evaluates the rearrangements (-1: all cores); the
+        result does not depend on it.
 
     Returns
     -------
@@ -276,9 +274,10 @@ def indicator_taxa(
       and nowhere else; the paper reports 100 times this value).
 
     The statistic of taxon ``j`` is ``max_g IndVal_gj``; the class labels are permuted among
-    sites (within strata if given) and the statistic recomputed for all taxa at once. All
-    class sums of one batch of rearrangements come from one matrix product of a one-hot
-    (rearrangement, class, site) array with the table, so a batch costs a few BLAS calls.
+    sites (within strata if given) and the statistic recomputed for all taxa at once: a
+    compiled kernel makes one pass over the sites per rearrangement for the class sums and
+    occurrence counts, then takes each taxon's largest value, the rearrangements of a batch
+    shared among threads. The observed values come from the definition in plain numpy.
     Ties between classes go to the first class in the order of :attr:`groups`.
 
     References
@@ -323,23 +322,19 @@ def indicator_taxa(
         return _indval_parts(sums[:, :, :t], sums[:, :, t:], sizes, combos)
 
     def statistic(orders: np.ndarray) -> np.ndarray:
-        step = max(1, _CELLS_PER_CHUNK // (n_groups * len(sites)))
-        out = np.empty((orders.shape[0], t))
-        for start in range(0, orders.shape[0], step):
-            spec, fid = parts(orders[start:start + step])
-            out[start:start + step] = (spec * fid).max(axis=1)
-        return out
+        return largest_indval(x, codes, sizes, combos, orders)
 
     plan = permutation_plan(len(sites), strata=strata_arr, n_resamples=n_resamples, rng=root,
                             site_labels=sites)
-    outcome = permutation_test(statistic, plan, alternative="greater", n_jobs=n_jobs,
-                               task="indicator taxa")
     spec, fid = parts(plan.identity())
     spec, fid = spec[0], fid[0]
     iv = spec * fid
     best = np.argmax(iv, axis=0)
     cols = np.arange(t)
     stat = iv[best, cols]
+    with numba_threads(n_jobs):
+        outcome = permutation_test(statistic, plan, observed=stat, alternative="greater",
+                                   task="indicator taxa")
     pvalues = np.asarray(outcome.pvalue, dtype=np.float64)
     adjusted = adjust_pvalues(pvalues, adjust)
     taxa = pd.Index(table.columns, name="taxon")
@@ -354,8 +349,8 @@ def indicator_taxa(
         "pvalue_adjusted": adjusted,
         "n_sites": cand_sizes[best].astype(np.int64),
     })
-    ties = [taxa[j] for j in range(t) if np.sum(np.isclose(iv[:, j], stat[j], rtol=1e-12,
-                                                            atol=0)) > 1]
+    tied = (np.abs(iv - stat[None, :]) <= 1e-12 * np.abs(stat)[None, :]).sum(axis=0) > 1
+    ties = list(taxa[tied])
     if ties:
         notes.append(f"Taxa {format_items(ties)} reach their largest indicator value in more "
                      "than one class; the first class is listed.")

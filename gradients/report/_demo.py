@@ -57,7 +57,7 @@ dissimilarity = "bray-curtis"
 [environment]
 log10 = ["Cu", "Zn", "Pb", "Cd"]      # right-skewed concentrations
 compositions = [["sand", "silt", "clay"]]  # parts that sum to 100 %: isometric log-ratios
-factors = ["habitat"]                 # categorical variables shown as class centroids
+factors = ["habitat", "zone"]         # categorical variables: class centroids, groups
 surfaces = ["Cu", "sand"]             # variables drawn as smooth surfaces on the ordination
 
 # Each hypothesis is a named group of variables; each is tested against community turnover
@@ -70,6 +70,14 @@ water_and_organic = ["pH", "organic_matter", "conductivity"]
 [design]
 covariables = []                      # variables controlled for in every test
 # strata = "campaign"                 # permute within the classes of this column
+
+# Site classes (the factors above) compared: PERMANOVA with a dispersion check, indicator
+# taxa of every class, and a clustering of the sites.
+[groups]
+terms = ["habitat", "zone"]           # design terms in order; "a:b" is an interaction
+top_taxa = 5                          # indicator taxa shown per class
+cluster = true                        # cluster the sites and draw the dendrogram
+contiguous = "space"                  # "none", "transect" (site order) or "space"
 
 [analyses]
 ordination = "nmds"                   # "nmds" or "pcoa"

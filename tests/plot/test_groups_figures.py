@@ -6,8 +6,7 @@ import numpy as np
 import pytest
 from scipy.cluster.hierarchy import dendrogram as scipy_dendrogram
 
-from gradients import DistanceMatrix, InputError, cluster_sites
-from gradients import plot
+from gradients import DistanceMatrix, InputError, cluster_sites, plot
 
 
 def _result(values, **kwargs):
