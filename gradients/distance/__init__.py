@@ -1,5 +1,6 @@
 """Distance stage: dissimilarities, transforms, geographic distance, the DistanceMatrix type."""
 
+from ._centred import GowerMatrix, gower_centred, permuted_products, permuted_traces  # noqa: F401
 from ._dissimilarity import METRICS, dissimilarity, extend_dissimilarity, gower_distance
 from ._environment import environmental_distance
 from ._geographic import geographic_distance
