@@ -63,6 +63,15 @@ _EXPORTS: dict[str, str] = {
     "mantel_correlogram": "matrix",
     "matrix_regression": "matrix",
     "distance_decay": "matrix",
+    # groups
+    "permanova": "groups",
+    "dispersion_test": "groups",
+    "anosim": "groups",
+    "mrpp": "groups",
+    "PermanovaResult": "groups",
+    "DispersionResult": "groups",
+    "AnosimResult": "groups",
+    "MrppResult": "groups",
     # report
     "load_project": "report",
     "init_project": "report",
