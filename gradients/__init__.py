@@ -65,7 +65,15 @@ _EXPORTS: dict[str, str] = {
     "mantel_correlogram": "matrix",
     "matrix_regression": "matrix",
     "distance_decay": "matrix",
-    # groups (indicator taxa, site clustering)
+    # groups
+    "permanova": "groups",
+    "dispersion_test": "groups",
+    "anosim": "groups",
+    "mrpp": "groups",
+    "PermanovaResult": "groups",
+    "DispersionResult": "groups",
+    "AnosimResult": "groups",
+    "MrppResult": "groups",
     "indicator_taxa": "groups",
     "IndicatorTaxaResult": "groups",
     "cluster_sites": "groups",
