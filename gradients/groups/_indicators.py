@@ -243,8 +243,8 @@ def indicator_taxa(
         also each pair of classes (for a taxon shared by two habitats), and so on
         (De Cáceres et al. 2010 [2]_). The union of all classes is never a candidate.
     n_resamples : int, default 999
-        Rearrangements of the class labels; when there are no more distinct site orders than
-        this, all are enumerated and the test is exact.
+        Rearrangements of the class labels; when there are no more distinct reassignments of
+        the sites to the classes than this, all are enumerated and the test is exact.
     rng : int, numpy.random.Generator or None
         When `rng` is None, a new `numpy.random.Generator` is created using entropy from the
         operating system.
@@ -324,8 +324,11 @@ def indicator_taxa(
     def statistic(orders: np.ndarray) -> np.ndarray:
         return largest_indval(x, codes, sizes, combos, orders)
 
-    plan = permutation_plan(len(sites), strata=strata_arr, n_resamples=n_resamples, rng=root,
-                            site_labels=sites)
+    # the largest value of each taxon depends only on which sites share a class, not on the
+    # classes' names: the exact null is over the distinct reassignments of the sites
+    plan = permutation_plan(len(sites), "relabel", groups=codes, strata=strata_arr,
+                            n_resamples=n_resamples, rng=root, site_labels=sites,
+                            interchangeable=True)
     spec, fid = parts(plan.identity())
     spec, fid = spec[0], fid[0]
     iv = spec * fid
@@ -360,7 +363,8 @@ def indicator_taxa(
                      "there and nowhere else reaches the largest possible value by chance "
                      "alone more easily.")
     if outcome.exact:
-        notes.append("Exact test: every distinct rearrangement of the sites was enumerated.")
+        notes.append(f"Exact test: every one of the {outcome.null_distribution.shape[0]} distinct "
+                     "reassignments of the sites to the classes was enumerated.")
     if adjust is None and t > 1:
         notes.append(f"No multiplicity adjustment across the {t} taxa (pvalue_adjusted repeats "
                      "pvalue).")

@@ -12,7 +12,8 @@ draws its figures with these same functions.
   :func:`surface` (a fitted surface as contours); :func:`shepard` (the Shepard diagram of an
   NMDS).
 - Matrix tests: :func:`correlogram` (Mantel correlogram), :func:`distance_decay`.
-- Group contrasts: :func:`dendrogram` (the tree of a site clustering).
+- Group contrasts: :func:`dendrogram` (the tree of a site clustering), :func:`dispersion`
+  (distances to class centroids behind a dispersion test).
 - Hypotheses: :func:`hypotheses`; drawn from tidy tables ahead of their stages:
   :func:`ranking`, :func:`turnover_curves`, :func:`partition`.
 - :func:`house_style`: the house style as a ``with`` block, to restyle or save a figure.
@@ -22,7 +23,7 @@ opens a window and no global matplotlib state changes.
 """
 
 from ._biplot import biplot
-from ._groups import dendrogram
+from ._groups import dendrogram, dispersion
 from ._hypotheses import hypotheses, partition, ranking, turnover_curves
 from ._matrix import correlogram, distance_decay
 from ._ordination import arrows, centroids, legend, sites, taxa
@@ -35,6 +36,7 @@ __all__ = [
     "centroids",
     "correlogram",
     "dendrogram",
+    "dispersion",
     "distance_decay",
     "house_style",
     "hypotheses",

@@ -77,6 +77,7 @@ covariables = []                      # variables controlled for in every test
 terms = ["habitat", "zone"]           # design terms in order; "a:b" is an interaction
 top_taxa = 5                          # indicator taxa shown per class
 cluster = true                        # cluster the sites and draw the dendrogram
+clusters = 4                          # number of clusters (default: widest silhouette)
 contiguous = "space"                  # "none", "transect" (site order) or "space"
 
 [analyses]

@@ -108,6 +108,10 @@ SCHEMA: dict[str, dict[str, Key]] = {
                      "order: class variables, and `a:b` for the interaction of two, e.g. "
                      "[\"zone\", \"period\", \"zone:period\"]. Default: each of "
                      "`environment.factors` as a main effect."),
+        "sums_of_squares": Key("choice", "sequential", "Sums of squares of the PERMANOVA: "
+                               "'sequential' (each term adjusted for the terms before it) or "
+                               "'marginal' (each term adjusted for all the others).",
+                               choices=("sequential", "marginal")),
         "top_taxa": Key("int", 5, "Indicator taxa shown per class in the report (all of them "
                         "are in tables/indicator_taxa.csv).", minimum=1),
         "cluster": Key("bool", False, "Cluster the sites by their communities and draw the "

@@ -77,12 +77,13 @@ def test_combinations_equal_the_definition():
 def test_exact_pvalue_by_hand():
     # Two classes of three sites; taxon "a" occurs only at the three "pool" sites, so its
     # largest value is 1. By hand: of the C(6, 3) = 20 ways to relabel the sites, only the two
-    # that put a's three sites together in one class reach 1, so p = 2 / 20 = 0.1 (every one
-    # of the 6! = 720 site orders is enumerated, each relabelling 36 times).
+    # that put a's three sites together in one class reach 1, so p = 2 / 20 = 0.1. The largest
+    # value does not depend on the classes' names, so the 10 pairs of relabellings that swap
+    # the two classes are enumerated once each: p = 1 / 10, the same.
     x = pd.DataFrame({"a": [5, 3, 4, 0, 0, 0], "b": [1, 1, 0, 1, 1, 1]}, index=list("pqrstu"))
     g = pd.Series(["pool"] * 3 + ["riffle"] * 3, index=x.index)
     res = indicator_taxa(x, g, n_resamples=999, rng=1)
-    assert res.exact
+    assert res.exact and res.null_distribution.shape[0] == 10
     assert res.pvalue["a"] == pytest.approx(0.1, abs=1e-12)
     row = res.table.set_index("taxon").loc["a"]
     assert (row["group"], row["indval"], row["specificity"], row["fidelity"]) == (
@@ -99,7 +100,9 @@ def test_exact_pvalue_within_strata_equals_direct_enumeration():
     g = pd.Series(["up", "up", "down", "up", "down", "down"], index=x.index)
     strata = pd.Series(["s1"] * 3 + ["s2"] * 3, index=x.index)
     res = indicator_taxa(x, g, strata=strata, n_resamples=999, rng=1)
-    assert res.exact and res.null_distribution.shape[0] == 36  # 3! x 3!
+    # by hand: C(3, 1) ways to pick the "down" site of stratum s1 times C(3, 2) for s2 = 9
+    # distinct reassignments; every one of the 3! x 3! = 36 orders gives one of them 4 times
+    assert res.exact and res.null_distribution.shape[0] == 9
     labels = g.to_numpy()
     obs = res.statistic.to_numpy()
     hits = np.zeros(3)

@@ -8,12 +8,14 @@ Permutations stay within ``design.strata`` when it is set.
 
 from __future__ import annotations
 
+import re
+
 import pandas as pd
 
 from ..._errors import InputError
 from .._model import Section
 from .._pipeline import Context
-from ._common import METRIC_NAMES, _add_figure, _strata
+from ._common import METRIC_NAMES, _add_figure, _fmt_p, _strata
 
 __all__ = ["class_variables", "groups_step"]
 
@@ -38,16 +40,154 @@ def class_variables(ctx: Context) -> list[str]:
     return names
 
 
+def _term_columns(terms: list[str]) -> list[str]:
+    """The columns a list of terms names (``zone:period``, ``site(zone)``, ``a*b``)."""
+    cols: list[str] = []
+    for term in terms:
+        for part in re.split(r"[:*()]", term):
+            part = part.strip()
+            if part and part not in cols:
+                cols.append(part)
+    return cols
+
+
+def _permanova(ctx: Context, sec: Section, names: list[str]) -> None:
+    from ...groups import permanova
+    from ...plot import dispersion
+
+    terms = list(ctx.settings["groups.terms"]) or list(names)
+    env = ctx.survey.environment
+    columns = _term_columns(terms)
+    missing = [c for c in columns if c not in env.columns]
+    if missing:
+        raise InputError(f"`groups.terms` names {missing[0]!r}, which the environmental table "
+                         "does not have.", columns=missing)
+    kind = ctx.settings["groups.sums_of_squares"]
+    strata = _strata(ctx)
+    d = ctx.results["community"]
+    res = permanova(d, env[columns], terms=terms, strata=strata, n_resamples=ctx.n_resamples,
+                    rng=ctx.rng("permanova"), sums_of_squares=kind, dispersion=False)
+    ctx.results["permanova"] = res
+    dispersions, disp_notes = _dispersions(ctx, terms, strata)
+    ctx.results["dispersion"] = dispersions
+    level = ctx.settings["output.level"]
+    table = res.table.copy()
+    sec.tables["permanova"] = table
+    sec.shown.append("permanova")
+    sec.display["permanova"] = ["term", "df", "sum_of_squares", "mean_square", "pseudo_f", "r2",
+                                "pvalue", "tested_against"]
+    tested = table[~table["term"].isin(["residual", "total"])]
+    words = "; ".join(
+        f"{r.term}: pseudo-F = {r.pseudo_f:.2f}, R2 = {r.r2:.3f}, {_fmt_p(r.pvalue)}"
+        for r in tested.itertuples())
+    sec.paragraphs.append(
+        "PERMANOVA (Anderson 2001) of the community dissimilarities: how much of their "
+        "variation lies between the classes of each term (R2) and whether that is more than "
+        "rearranging the sites would give (pseudo-F and its permutation p-value; "
+        f"{kind} sums of squares"
+        + (", each term adjusted for the terms before it" if kind == "sequential"
+           else ", each term adjusted for all the others") + "). " + words + ".")
+    if len(res.pairwise):
+        sec.tables["permanova_pairwise"] = res.pairwise
+        sec.shown.append("permanova_pairwise")
+    disp = pd.DataFrame(
+        [{"term": t, "n_groups": r.n_groups, "statistic": r.statistic, "df": r.df,
+          "df_residual": r.df_residual, "pvalue": r.pvalue, "exact": r.exact}
+         for t, r in dispersions.items()],
+        columns=["term", "n_groups", "statistic", "df", "df_residual", "pvalue", "exact"])
+    if len(disp):
+        sec.tables["dispersion"] = disp
+        sec.shown.append("dispersion")
+        differ = [r.term for r in disp.itertuples() if r.pvalue <= level]
+        sec.paragraphs.append(
+            "Dispersion check (Anderson 2006): do the classes differ in spread, each site's "
+            "distance to its class centroid compared among classes? "
+            + ("; ".join(f"{r.term}: F = {r.statistic:.2f}, {_fmt_p(r.pvalue)}"
+                         for r in disp.itertuples()) + ". ")
+            + (f"The spreads differ for {', '.join(differ)}: a significant PERMANOVA term "
+               "there may reflect the difference in spread rather than a shift of the "
+               "classes' centres (the notes say more)." if differ else
+               "No class variable differs in spread at this level, so the PERMANOVA terms "
+               "read as shifts of the classes' centres."))
+        for term, result in dispersions.items():
+            _add_figure(ctx, sec, f"dispersion_{term}",
+                        f"Distance of every site to the centroid of its class of {term} (the "
+                        "dispersion check); bars: class means; filled marks: spreads differ.",
+                        dispersion, result, alpha=level)
+    sec.notes.extend(f"PERMANOVA: {n}" for n in res.notes)
+    sec.notes.extend(disp_notes)
+    for term in terms:
+        if ":" in term and "(" not in term:
+            a, b = term.split(":", 1)
+            sec.notes.append(
+                f"The interaction {term} asks whether the differences among the classes of {a} "
+                f"change with {b} (and the other way round). In a before/after-control/impact "
+                "design (period x treatment, sites as strata) it is the test of impact: did "
+                "the impact sites change from before to after differently from the control "
+                "sites? The main effects alone say nothing about an impact.")
+    ctx.methods.append(
+        "Differences among site classes were tested by PERMANOVA (Anderson 2001; McArdle & "
+        f"Anderson 2001) of the community dissimilarities with the terms {', '.join(terms)} "
+        f"({kind} sums of squares), each term by permuting the residuals of the model without "
+        "it (Anderson & ter Braak 2003)"
+        + (f" within {ctx.settings['design.strata']}" if strata is not None else "")
+        + ": " + words + ". Beside each factor, homogeneity of dispersions was tested with "
+        "distances to class centroids (Anderson 2006)"
+        + (": " + "; ".join(f"{r.term} F = {r.statistic:.2f} ({_fmt_p(r.pvalue)})"
+                            for r in disp.itertuples()) if len(disp) else "") + ".")
+
+
+def _dispersions(ctx: Context, terms: list[str], strata: pd.Series | None
+                 ) -> tuple[dict[str, object], list[str]]:
+    """The dispersion check of every factor among the terms, and notes on those not checked.
+
+    A factor that does not vary within the strata (the treatment of a site visited before and
+    after) has no rearrangement within them: it is listed in the notes, not tested.
+    """
+    from ...groups import dispersion_test
+
+    env = ctx.survey.environment
+    out: dict[str, object] = {}
+    notes: list[str] = []
+    for term in terms:
+        if any(ch in term for ch in ":*(") or pd.api.types.is_numeric_dtype(env[term]):
+            continue
+        try:
+            result = dispersion_test(ctx.results["community"], env[term], strata=strata,
+                                     n_resamples=ctx.n_resamples,
+                                     rng=ctx.rng(f"dispersion:{term}"))
+        except InputError as exc:
+            if strata is None or "changes nothing" not in str(exc):
+                raise
+            notes.append(f"Dispersion check: {term} does not vary within the strata "
+                         f"({ctx.settings['design.strata']}), so its spread cannot be compared "
+                         "by rearranging sites within them; it was not checked.")
+            continue
+        out[term] = result
+        notes.extend(f"Dispersion check of {term}: {n}" for n in result.notes)
+    return out, notes
+
+
 def _indicators(ctx: Context, sec: Section, names: list[str]) -> None:
     from ...groups import indicator_taxa
 
     top_n = ctx.settings["groups.top_taxa"]
     level = ctx.settings["output.level"]
     full, shown, found = [], [], []
+    strata = _strata(ctx)
     for name in names:
-        res = indicator_taxa(ctx.survey.community, ctx.survey.environment[name].astype(object),
-                             n_resamples=ctx.n_resamples, rng=ctx.rng(f"indicators:{name}"),
-                             strata=_strata(ctx))
+        try:
+            res = indicator_taxa(ctx.survey.community,
+                                 ctx.survey.environment[name].astype(object),
+                                 n_resamples=ctx.n_resamples,
+                                 rng=ctx.rng(f"indicators:{name}"), strata=strata)
+        except InputError as exc:
+            if strata is None or "changes nothing" not in str(exc):
+                raise
+            sec.notes.append(f"Indicator taxa: {name} does not vary within the strata "
+                             f"({ctx.settings['design.strata']}), so its indicator values "
+                             "cannot be tested by rearranging sites within them; not listed.")
+            continue
         ctx.results.setdefault("indicators", {})[name] = res
         table = res.table.copy()
         table.insert(0, "variable", name)
@@ -62,6 +202,9 @@ def _indicators(ctx: Context, sec: Section, names: list[str]) -> None:
                                          for r in best.itertuples()) + ")" if len(best) else ""))
         sec.notes.extend(f"Indicator taxa of {name}: {n}" for n in res.notes
                          if not n.startswith("Exact test"))
+    if not full:
+        return
+    names = list(ctx.results["indicators"])
     cols = ["variable", "group", "taxon", "indval", "specificity", "fidelity", "pvalue",
             "pvalue_adjusted", "n_sites"]
     sec.tables["indicator_taxa"] = pd.concat(full, ignore_index=True)[cols]
@@ -150,6 +293,7 @@ def groups_step(ctx: Context) -> None:
     if names:
         sec.paragraphs.append(
             "How the communities differ between the classes of " + ", ".join(names) + ".")
+        _permanova(ctx, sec, names)
         _indicators(ctx, sec, names)
     if cluster:
         _clusters(ctx, sec, names)
