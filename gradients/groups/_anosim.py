@@ -11,7 +11,7 @@ from scipy.stats import rankdata
 from .._result import ResultMixin
 from .._validation import RNGLike, check_n_jobs, check_n_resamples
 from ..distance import DistanceMatrix
-from ..distance._centred import PermutedTraces
+from ..distance._centred import PermutedClassSums
 from ..permutation import permutation_test
 from ._classes import check_distances, group_plan, numba_threads, read_classes, read_strata
 
@@ -98,9 +98,9 @@ def anosim(
     and between classes, ``R = (r_B - r_W) / (M / 2)`` [1]_. Only the ranks within classes
     change when sites are reassigned: their sum is ``tr(X' R_o X) / 2`` for the class
     indicator matrix ``X`` and the rank matrix ``R`` rearranged by the order ``o``, evaluated
-    for a whole batch by the distance stage's trace kernel; the between-class sum is the
-    total less it. ANOSIM is sensitive to differences in spread as well as in location, as
-    PERMANOVA is [2]_.
+    for a whole batch by the distance stage's kernel over the classes' blocks; the
+    between-class sum is the total less it. ANOSIM is sensitive to differences in spread as
+    well as in location, as PERMANOVA is [2]_.
 
     References
     ----------
@@ -132,12 +132,11 @@ def anosim(
     iu = np.triu_indices(n, 1)
     square[iu] = ranks
     square += square.T
-    x = classes.indicators()
     sizes = classes.sizes
     n_within = int(np.sum(sizes * (sizes - 1) // 2))
     n_between = m - n_within
     total = float(m * (m + 1) / 2)
-    kernel = PermutedTraces(square, [x])
+    kernel = PermutedClassSums(square, classes.codes)
 
     def from_within(within: np.ndarray) -> np.ndarray:
         mean_w = within / n_within
@@ -145,7 +144,7 @@ def anosim(
         return (mean_b - mean_w) / (m / 2.0)
 
     def statistic(orders: np.ndarray) -> np.ndarray:
-        return from_within(kernel(orders)[:, 0] / 2.0)
+        return from_within(kernel(orders).sum(axis=1) / 2.0)  # zero diagonal: pairs
 
     same = classes.codes[:, None] == classes.codes[None, :]
     within_obs = float(square[iu][same[iu]].sum())

@@ -53,12 +53,19 @@ class Classes:
         The classes, in category order for a categorical, else sorted.
     codes : ndarray of int
         Position of every site's class in ``levels``.
+    column : str or None
+        The column's own name, for :attr:`InputError.columns`.
     """
 
     name: str
     values: np.ndarray
     levels: tuple[object, ...]
     codes: np.ndarray
+    column: str | None = None
+
+    @property
+    def columns(self) -> list[str]:
+        return [self.column] if self.column is not None else []
 
     @property
     def sizes(self) -> np.ndarray:
@@ -93,7 +100,7 @@ def _empty_classes(series: pd.Series, name: str) -> None:
             f"Class(es) {format_items(empty)} of {name} have no sites: a class with no sites "
             "cannot be compared. Remove the unused categories "
             f"(`.cat.remove_unused_categories()` on {name}) or add sites of those classes.",
-            columns=[name])
+            columns=[] if series.name is None else [str(series.name)])
 
 
 def read_classes(groups: object, labels: pd.Index, *, name: str | None = None,
@@ -111,9 +118,10 @@ def read_classes(groups: object, labels: pd.Index, *, name: str | None = None,
                              f"{groups.shape[1]} columns ({format_items(groups.columns)}). Pass "
                              "one of them, e.g. design['zone'].")
         groups = groups.iloc[:, 0]
+    column = (str(groups.name) if isinstance(groups, pd.Series) and groups.name is not None
+              else None)
     if name is None:
-        name = (f"column {str(groups.name)!r}" if isinstance(groups, pd.Series)
-                and groups.name is not None else "`groups`")
+        name = f"column {column!r}" if column is not None else "`groups`"
     if isinstance(groups, pd.Series):
         _empty_classes(groups, name)
         levels = class_levels(groups)
@@ -122,15 +130,20 @@ def read_classes(groups: object, labels: pd.Index, *, name: str | None = None,
     try:
         values = align_strata(groups, labels, name="groups", sites_name="the distance matrix")
     except InputError as err:
-        raise InputError(str(err).replace("`groups`", name), sites=err.sites,
-                         columns=[name]) from None
+        if "is missing for site" in str(err):
+            raise InputError(
+                f"{name[0].upper() + name[1:]} has no class for site(s) "
+                f"{format_items(err.sites)}. Give every site a class, or drop those sites from "
+                "the distance matrix and the classes (.subset()).", sites=err.sites,
+                columns=[] if column is None else [column]) from None
+        raise
     if values is None:
         raise InputError("`groups` is required: one class label per site.")
     if levels is None:
         levels = class_levels(pd.Series(values, dtype=object))
     lookup = {level: i for i, level in enumerate(levels)}
     codes = np.array([lookup[v] for v in values], dtype=np.intp)
-    out = Classes(name=name, values=values, levels=tuple(levels), codes=codes)
+    out = Classes(name=name, values=values, levels=tuple(levels), codes=codes, column=column)
     check_classes(out, labels, min_size=min_size)
     return out
 
@@ -139,9 +152,10 @@ def check_classes(classes: Classes, labels: pd.Index, *, min_size: int = 2) -> N
     """Refuse fewer than two classes, or a class with fewer than ``min_size`` sites."""
     if len(classes.levels) < 2:
         raise InputError(
-            f"{classes.name} has one class only ({format_items(classes.levels)}) at all "
-            f"{len(labels)} sites: there is nothing to compare. Give at least two classes.",
-            columns=[classes.name])
+            f"{classes.name[0].upper() + classes.name[1:]} has one class only "
+            f"({format_items(classes.levels)}) at all {len(labels)} sites: there is nothing to "
+            "compare. Give at least two classes.",
+            columns=classes.columns)
     small = [i for i, s in enumerate(classes.sizes) if s < min_size]
     if small:
         parts = [f"{str(classes.levels[i])!r} ({format_items(labels[classes.codes == i])})"
@@ -152,7 +166,7 @@ def check_classes(classes: Classes, labels: pd.Index, *, min_size: int = 2) -> N
             + "; ".join(parts) + ". A class needs at least two sites to have a spread of its "
             "own to compare. Merge each with a similar class, or drop those sites (use "
             ".subset() on the distance matrix and the table).",
-            sites=sites, columns=[classes.name])
+            sites=sites, columns=classes.columns)
 
 
 def group_plan(labels: pd.Index, codes: np.ndarray, *, strata: np.ndarray | None,

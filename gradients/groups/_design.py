@@ -241,7 +241,7 @@ def _read_factor(series: pd.Series, name: str, labels: pd.Index) -> Classes:
     lookup = {v: i for i, v in enumerate(levels)}
     codes = np.array([lookup[v] for v in series.to_numpy()], dtype=np.intp)
     classes = Classes(f"design column {name!r}", series.to_numpy(dtype=object), tuple(levels),
-                      codes)
+                      codes, column=name)
     if len(levels) < 2:
         check_classes(classes, labels)  # raises: one class only
     return classes
@@ -397,18 +397,21 @@ def model_bases(design: Design, kind: str) -> tuple[list[np.ndarray], list[np.nd
     else:
         everything = np.column_stack(cols)
         full = span(everything, _scale(everything))
-        if full.shape[1] < everything.shape[1]:
-            raise InputError(
-                "Marginal sums of squares need every column of every term to be estimable, "
-                f"but the design has {everything.shape[1]} columns and only {full.shape[1]} "
-                "independent directions (empty cells of an interaction, or terms whose classes "
-                "coincide). Use sums_of_squares='sequential', or drop the interaction.")
         for i, x in enumerate(cols):
             others = [c for j, c in enumerate(cols) if j != i]
             rest = np.column_stack(others) if others else np.empty((design.n, 0))
             r = span(rest, _scale(rest))
             tested.append(span(remove(x, r), _scale(x)))
             reduced.append(r)
+        short = [t for t, q, x in zip(design.terms, tested, cols, strict=True)
+                 if q.shape[1] < x.shape[1]]
+        if short:
+            raise InputError(
+                "Marginal sums of squares need every column of every term to be estimable "
+                f"given all the others, and {format_items([t.name for t in short])} "
+                f"{'is' if len(short) == 1 else 'are'} not (empty cells of an interaction, or "
+                "terms whose classes coincide). Use sums_of_squares='sequential', or drop the "
+                "interaction.", columns=list(dict.fromkeys(c for t in short for c in t.columns)))
     df_res = design.n - 1 - full.shape[1]
     if df_res < 1:
         widths = ", ".join(f"{n} ({q.shape[1]} df)" for n, q in zip(names, tested, strict=True))

@@ -10,7 +10,7 @@ import pandas as pd
 from .._result import ResultMixin
 from .._validation import RNGLike, check_n_jobs, check_n_resamples
 from ..distance import DistanceMatrix
-from ..distance._centred import PermutedTraces
+from ..distance._centred import PermutedClassSums
 from ..permutation import permutation_test
 from ._classes import check_distances, group_plan, numba_threads, read_classes, read_strata
 
@@ -103,8 +103,9 @@ def mrpp(
     weights sum to one, so that mean is ``E(delta)``; ``A = 1 - delta / E(delta)`` is the
     chance-corrected agreement [2]_. ``delta`` is a trace, ``tr(Q' D_o Q)`` with column ``g``
     of ``Q`` equal to ``sqrt(C_g / (n_g (n_g - 1)))`` on the sites of class ``g``, so a batch
-    of reassignments is evaluated by the distance stage's trace kernel. Small delta is
-    evidence of classes, so the p-value counts reassignments with delta at most the observed.
+    of reassignments is evaluated by the distance stage's kernel over the classes' blocks.
+    Small delta is evidence of classes, so the p-value counts reassignments with delta at most
+    the observed.
 
     References
     ----------
@@ -133,12 +134,11 @@ def mrpp(
     square = dm.square().astype(np.float64, copy=False)
     sizes = classes.sizes.astype(np.float64)
     weights = sizes / n
-    x = classes.indicators()
-    basis = x * np.sqrt(weights / (sizes * (sizes - 1)))
-    kernel = PermutedTraces(square, [basis])
+    scale = weights / (sizes * (sizes - 1))
+    kernel = PermutedClassSums(square, classes.codes)
 
     def statistic(orders: np.ndarray) -> np.ndarray:
-        return kernel(orders)[:, 0]
+        return kernel(orders) @ scale
 
     per_class = []
     for i, size in enumerate(classes.sizes):

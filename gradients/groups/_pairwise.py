@@ -9,7 +9,7 @@ import pandas as pd
 
 from .._errors import InputError
 from ..distance import DistanceMatrix, gower_centred
-from ..distance._centred import PermutedTraces
+from ..distance._centred import PermutedClassSums
 from ..permutation import adjust_pvalues, permutation_test
 from ._classes import group_plan, numba_threads, streams
 from ._design import Design, Term
@@ -32,10 +32,11 @@ def pair_test(dm: DistanceMatrix, codes: np.ndarray, strata: np.ndarray | None, 
     total = gm.total
     ss = float(q[:, 0] @ g @ q[:, 0])
     stat = ss / ((total - ss) / (m - 2))
-    kernel = PermutedTraces(g, [q])
+    kernel = PermutedClassSums(g, codes)
+    sizes = np.bincount(codes, minlength=2).astype(np.float64)
 
     def statistic(orders: np.ndarray) -> np.ndarray:
-        s = kernel(orders)[:, 0]
+        s = (kernel(orders) / sizes).sum(axis=1)  # tr(Q' G_o Q): G's rows sum to zero
         with np.errstate(divide="ignore", invalid="ignore"):
             return s / ((total - s) / (m - 2))
 

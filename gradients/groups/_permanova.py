@@ -9,6 +9,7 @@ rearranged matrix, evaluated for whole batches of orders by the distance stage's
 
 from __future__ import annotations
 
+import dataclasses
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -18,8 +19,14 @@ from .._errors import InputError, format_items
 from .._result import ResultMixin
 from .._validation import RNGLike, check_choice, check_n_jobs, check_n_resamples
 from ..distance import DistanceMatrix, GowerMatrix, gower_centred
-from ..distance._centred import PermutedTraces
-from ..permutation import ADJUST_METHODS, PermutationPlan, permutation_plan, permutation_test
+from ..distance._centred import PermutedClassSums, PermutedTraces
+from ..permutation import (
+    ADJUST_METHODS,
+    PermutationPlan,
+    permutation_plan,
+    permutation_test,
+    site_ranks,
+)
 from ._classes import BATCH_SIZE, check_distances, numba_threads, read_strata, streams
 from ._design import Design, Term, model_bases, read_design
 from ._dispersion import DispersionResult, dispersion_from_gower
@@ -111,7 +118,8 @@ class _TermTest:
     second: np.ndarray | None = field(repr=False)
     total: float = 0.0
     adjusted: bool = False  # the reduced model is not empty (residuals, not sites, permuted)
-    kernel: PermutedTraces | None = field(default=None, repr=False)
+    classes: np.ndarray | None = field(default=None, repr=False)  # one-way: class codes
+    kernel: PermutedTraces | PermutedClassSums | None = field(default=None, repr=False)
 
     @property
     def statistic(self) -> float:
@@ -123,6 +131,11 @@ class _TermTest:
         return (self.kind, codes)
 
     def prepare(self) -> None:
+        if self.kernel is None and self.classes is not None:
+            # One factor alone: tr(Q' G_o Q) = sum_c S_c / n_c, S_c the sum of G_o over the
+            # block of class c (G's rows sum to zero), read over the blocks only.
+            self.kernel = PermutedClassSums(self.g, self.classes)
+            self._sizes = np.bincount(self.classes).astype(np.float64)
         if self.kernel is None:
             bases = [self.tested] if self.second is None else [self.tested, self.second]
             self.kernel = PermutedTraces(self.g, bases)
@@ -132,6 +145,10 @@ class _TermTest:
 
     def batch(self, orders: np.ndarray) -> np.ndarray:
         self.prepare()
+        if self.classes is not None:
+            ss = (self.kernel(orders) / self._sizes).sum(axis=1)  # type: ignore[misc]
+            with np.errstate(divide="ignore", invalid="ignore"):
+                return (ss / self.df) / ((self.total - ss) / self.den_df)
         traces = self.kernel(orders)  # type: ignore[misc]
         ss = traces[:, 0]
         if self.kind == "residuals":
@@ -213,9 +230,13 @@ def _build_tests(design: Design, gm: GowerMatrix, kind: str, strata: np.ndarray 
             restrict = _combine(strata, design.combination(list(term.within)))
         gr = _residual_matrix(g, reduced[i])
         whole_model = reduced[i].shape[1] == 0 and full.shape[1] == q.shape[1]
+        one_way = (len(design.terms) == 1 and not term.nested and not design.covariates
+                   and len(term.factors) == 1)
         tests.append(_TermTest(term, "residuals", q.shape[1], ss, "residual", df_res, rss,
                                restrict, gr, q, None if whole_model else full,
-                               total=float(np.trace(gr)), adjusted=bool(reduced[i].shape[1])))
+                               total=float(np.trace(gr)), adjusted=bool(reduced[i].shape[1]),
+                               classes=design.factors[term.factors[0]].codes if one_way
+                               else None))
     return tests, rss, df_res, notes
 
 
@@ -401,25 +422,50 @@ def permanova(
     kind = check_choice("sums_of_squares", sums_of_squares, SUMS_OF_SQUARES)
     if adjust is not None:
         check_choice("adjust", adjust, ADJUST_METHODS)
+    given = dm.labels
+    strata_values = read_strata(strata, given)
+    # Work on the sites sorted by label, so that every plan (whole units included) and hence
+    # every p-value is the same however the rows of the inputs were ordered.
+    order = np.argsort(site_ranks(given))
+    dm = dm.subset(given[order])
+    if strata_values is not None:
+        strata_values = strata_values[order]
     des, notes = read_design(design, dm.labels, terms)
-    strata_values = read_strata(strata, dm.labels)
     gm = gower_centred(dm)
     tests, rss, df_res, more = _build_tests(des, gm, kind, strata_values)
     notes.extend(more)
     factor_terms = des.factor_terms()
     seeds = streams(rng, 1 + 2 * len(factor_terms))
     outcome = _run(tests, des, n_resamples, seeds[0], n_jobs)
+    if strata_values is not None:
+        for t in tests:  # no rearrangement within strata moves its classes: no test of it
+            if t.kind == "residuals" and _constant_within(des, t.term, strata_values):
+                _, *rest = outcome[t.term.name]
+                outcome[t.term.name] = (float("nan"), *rest)
 
     table = _table(tests, outcome, rss, df_res, gm.total, des.n, kind)
     dispersions: dict[str, DispersionResult] = {}
     if dispersion:
         for j, t in enumerate(factor_terms):
-            dispersions[t.name] = dispersion_from_gower(
+            if strata_values is not None and _constant_within(des, t, strata_values):
+                notes.append(f"The spreads of {t.name!r} are not tested: it does not vary "
+                             "within the strata, so no rearrangement within strata can "
+                             "reassign its classes.")
+                continue
+            res = dispersion_from_gower(
                 gm, des.factors[t.factors[0]], strata=strata_values, n_resamples=n_resamples,
                 rng=seeds[1 + j], n_jobs=n_jobs)
+            dispersions[t.name] = dataclasses.replace(res, distances=res.distances.loc[given])
     pairs = pd.DataFrame(columns=list(PAIRWISE_COLUMNS))
     if pairwise:
-        asked = [t for t in factor_terms if len(des.factors[t.factors[0]].levels) > 2]
+        whole = {t.term.name: t.denominator for t in tests if t.kind == "units"}
+        asked = [t for t in factor_terms if len(des.factors[t.factors[0]].levels) > 2
+                 and t.name not in whole]
+        for name, den in whole.items():
+            if name in des.factors and len(des.factors[name].levels) > 2:
+                notes.append(f"Pairs of classes of {name!r} are not compared: it is tested "
+                             f"against {den!r}, and a comparison of sites would count the "
+                             "sites of one unit as independent replicates.")
         pairs, pair_notes = pairwise_tests(
             dm, des, asked, strata_values, n_resamples=n_resamples,
             seeds={t.name: seeds[1 + len(factor_terms) + factor_terms.index(t)] for t in asked},
@@ -491,9 +537,9 @@ def _notes(notes: list[str], design: Design, tests: list[_TermTest], kind: str,
                 and _constant_within(design, t.term, strata)]
         if flat:
             out.append(f"{format_items(flat)} do(es) not vary within the strata: rearrangements "
-                       "within strata cannot change it, so its p-value is 1 by construction "
-                       "and says nothing. Test it without `strata`, or with its units as a "
-                       "nested term.")
+                       "within strata never reassign its classes, so it is not tested (no "
+                       "p-value). Test it without `strata`, or with the strata's units as a "
+                       "nested term (e.g. 'site(treatment)').")
     out.extend(notes)
     out.extend(gm.spectrum_notes())
     for name, res in dispersions.items():
