@@ -52,6 +52,7 @@ def _calls(demo) -> dict[str, Callable[..., object]]:
         "ranking": lambda **kw: plot.ranking(RANKING, **kw),
         "partition": lambda **kw: plot.partition(FRACTIONS, **kw),
         "dendrogram": lambda **kw: plot.dendrogram(demo.clusters, **kw),
+        "dispersion": lambda **kw: plot.dispersion(demo.dispersion, **kw),
     }
 
 
@@ -104,7 +105,7 @@ def test_makes_a_house_style_figure_without_axes(name, demo, no_files):
 
 @pytest.mark.parametrize("name", ["biplot", "surface", "shepard", "correlogram",
                                   "distance_decay", "hypotheses", "ranking", "partition",
-                                  "dendrogram"])
+                                  "dendrogram", "dispersion"])
 def test_whole_figures_have_a_title_and_honour_figsize(name, demo):
     ax = _calls(demo)[name](figsize=(4.0, 3.0), title="My title")
     assert ax.get_title(loc="left") == "My title"
@@ -148,6 +149,8 @@ def test_results_of_the_wrong_kind_are_named(demo):
         plot.hypotheses({"metals": demo.pcoa})
     with pytest.raises(InputError, match="`result` must be the result of cluster_sites"):
         plot.dendrogram(demo.pcoa)
+    with pytest.raises(InputError, match="`result` must be the result of dispersion_test"):
+        plot.dispersion(demo.clusters)
 
 
 def test_reachable_from_the_package():

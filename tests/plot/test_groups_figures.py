@@ -52,7 +52,7 @@ def test_clusters_have_their_own_colour_and_shape_and_the_cut_is_marked():
     x = cut.get_xdata()[0]
     assert h[-3] < x < h[-2]  # between the last merge kept and the first undone
     labels = [t.get_text() for t in ax.figure.legends[0].get_texts()]
-    assert labels == [f"cluster {c} ({n} sites)" for c, n in
+    assert labels == [f"cluster {c} ({n} site{'' if n == 1 else 's'})" for c, n in
                       zip(res.clusters["cluster"], res.clusters["n_sites"], strict=True)]
 
 
