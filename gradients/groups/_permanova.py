@@ -19,7 +19,8 @@ from .._errors import InputError, format_items
 from .._result import ResultMixin
 from .._validation import RNGLike, check_choice, check_n_jobs, check_n_resamples
 from ..distance import DistanceMatrix, GowerMatrix, gower_centred
-from ..distance._centred import PermutedClassSums, PermutedTraces
+from ..distance._centred import PermutedTraces
+from ..distance._class_sums import PermutedClassSums
 from ..permutation import (
     ADJUST_METHODS,
     PermutationPlan,

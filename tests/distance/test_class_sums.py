@@ -7,7 +7,8 @@ import numpy as np
 import pytest
 
 from gradients import InputError
-from gradients.distance._centred import PermutedClassSums, permuted_traces
+from gradients.distance._centred import permuted_traces
+from gradients.distance._class_sums import PermutedClassSums
 
 
 def test_class_sums_equal_the_rearranged_blocks():
