@@ -10,7 +10,7 @@ import pandas as pd
 from .._result import ResultMixin
 from .._validation import RNGLike, check_n_jobs, check_n_resamples
 from ..distance import DistanceMatrix
-from ..distance._centred import PermutedClassSums
+from ..distance._class_sums import PermutedClassSums
 from ..permutation import permutation_test
 from ._classes import check_distances, group_plan, numba_threads, read_classes, read_strata
 

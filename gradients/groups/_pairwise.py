@@ -9,7 +9,7 @@ import pandas as pd
 
 from .._errors import InputError
 from ..distance import DistanceMatrix, gower_centred
-from ..distance._centred import PermutedClassSums
+from ..distance._class_sums import PermutedClassSums
 from ..permutation import adjust_pvalues, permutation_test
 from ._classes import group_plan, numba_threads, streams
 from ._design import Design, Term

@@ -19,7 +19,8 @@ from .._errors import InputError, format_items
 from .._result import ResultMixin
 from .._validation import RNGLike, check_choice, check_n_jobs, check_n_resamples
 from ..distance import DistanceMatrix, GowerMatrix, gower_centred
-from ..distance._centred import PermutedClassSums, PermutedTraces
+from ..distance._centred import PermutedTraces
+from ..distance._class_sums import PermutedClassSums
 from ..permutation import (
     ADJUST_METHODS,
     PermutationPlan,
@@ -29,7 +30,7 @@ from ..permutation import (
 )
 from ._classes import BATCH_SIZE, check_distances, numba_threads, read_strata, streams
 from ._design import Design, Term, model_bases, read_design
-from ._dispersion import DispersionResult, dispersion_from_gower
+from ._dispersion import DispersionResult, confounding_note, dispersion_from_gower
 from ._pairwise import PAIRWISE_COLUMNS, pairwise_tests
 
 __all__ = ["SUMS_OF_SQUARES", "TABLE_COLUMNS", "PermanovaResult", "permanova"]
@@ -544,7 +545,7 @@ def _notes(notes: list[str], design: Design, tests: list[_TermTest], kind: str,
     out.extend(gm.spectrum_notes())
     for name, res in dispersions.items():
         if res.differs:
-            out.extend(n for n in res.notes if n.startswith("Spreads differ"))
+            out.append(confounding_note(repr(name), res.statistic, res.pvalue))
         else:
             out.append(f"Spreads do not differ detectably among the classes of {name!r} "
                        f"(dispersion F = {res.statistic:.3g}, p = {res.pvalue:.3g}).")
