@@ -74,3 +74,28 @@ def test_labels_left_out_for_many_sites_unless_asked():
 def test_wrong_result_is_named():
     with pytest.raises(InputError, match="`result` must be the result of cluster_sites"):
         plot.dendrogram(object())
+
+
+def test_dispersion_rows_hold_every_site_at_its_distance():
+    # the distances drawn are the result's (Anderson 2006: distance to the class centroid);
+    # counts and means recomputed from the result's table with pandas
+    from gradients import dispersion_test
+
+    rng = np.random.default_rng(3)
+    pts = np.vstack([rng.normal(0, 1, (8, 2)), rng.normal(0, 3, (9, 2))])
+    d = DistanceMatrix.from_square(np.sqrt(((pts[:, None] - pts[None]) ** 2).sum(-1)),
+                                   labels=[f"p{i}" for i in range(17)])
+    res = dispersion_test(d, ["tight"] * 8 + ["loose"] * 9, n_resamples=99, rng=1)
+    ax = plot.dispersion(res, alpha=0.05)
+    rows = _by_label(ax, "_gr:distances")
+    levels = list(res.table["group"])  # rows in the result's class order, first at the top
+    assert [len(c.get_offsets()) for c in rows] == list(res.table["n_sites"])
+    for c, level in zip(rows, levels, strict=True):
+        want = np.sort(res.distances.loc[res.distances["group"] == level, "distance"])
+        np.testing.assert_allclose(np.sort(c.get_offsets()[:, 0]), want, rtol=1e-12)
+    means = sorted(line.get_xdata()[0] for line in ax.lines if line.get_label() == "_gr:mean")
+    np.testing.assert_allclose(means, sorted(res.table["mean_distance"]), rtol=1e-12)
+    filled = res.pvalue <= 0.05
+    face = rows[0].get_facecolor()[0]
+    assert (tuple(face[:3]) != (1.0, 1.0, 1.0)) == filled
+    assert f"p = {res.pvalue:.3f}" in ax.get_title(loc="right")
