@@ -6,15 +6,16 @@ command line start fast even though the stages pull in geopandas, statsmodels an
 Stages, one subpackage each, in the order data flows through them; each imports only from the
 stages before it, and the analysis stages in braces never import each other::
 
-    data -> distance -> ordination -> permutation -> {fitting, matrix, partition} -> plot
-         -> report
+    data -> distance -> ordination -> permutation -> {fitting, matrix, partition, groups}
+         -> plot -> report
 
 ``data`` reads and checks the survey; ``distance`` builds dissimilarities and distances;
 ``ordination`` gives site scores (PCoA, NMDS, PCA); ``permutation`` is the one engine behind
 every permutation test; ``fitting`` puts environmental variables onto ordination space;
 ``matrix`` holds the Mantel family; ``partition`` separates space from environment on the raw
-data (dbRDA, spatial eigenvectors, variation partitioning); ``plot`` draws figures from result
-objects; ``report`` runs a project and writes its folder. ``gradients.cli`` parses the command
+data (dbRDA, spatial eigenvectors, variation partitioning); ``groups`` compares site classes
+(PERMANOVA, dispersions, ANOSIM, MRPP, indicator taxa, site clustering); ``plot`` draws figures
+from result objects; ``report`` runs a project and writes its folder. ``gradients.cli`` parses the command
 line and calls ``report``.
 """
 
