@@ -27,13 +27,13 @@ from .._result import ResultMixin
 from .._validation import (
     RNGLike,
     align_strata,
-    check_labels_match,
     check_n_jobs,
     check_n_resamples,
     seed_sequence,
 )
 from ..permutation import ADJUST_METHODS, adjust_pvalues, permutation_plan, permutation_test
 from ..permutation._threads import numba_threads
+from ._classes import read_classes
 from ._indicator_kernels import largest_indval
 
 __all__ = ["IndicatorTaxaResult", "indicator_taxa"]
@@ -140,45 +140,14 @@ def _community(community: object) -> pd.DataFrame:
 
 
 def _classes(groups: object, sites: pd.Index) -> tuple[np.ndarray, list[str], list[str]]:
-    """Class codes (0..G-1) in site order, the class names, and notes."""
-    if isinstance(groups, pd.DataFrame) and groups.shape[1] == 1:
-        groups = groups.iloc[:, 0]
-    if not isinstance(groups, pd.Series):
-        raise InputError("`groups` must be a pandas Series of class labels indexed by site "
-                         f"label; got {type(groups).__name__}.")
-    if groups.index.has_duplicates:
-        dup = groups.index[groups.index.duplicated()].unique()
-        raise InputError(f"Site labels in `groups` are repeated: {format_items(dup)}.",
-                         sites=list(dup))
-    check_labels_match(sites, groups.index, left_name="`community`", right_name="`groups`",
-                       fix="Give one class label for every site of the community table.")
-    values = groups.loc[sites]
-    missing = values.isna().to_numpy()
-    if missing.any():
-        raise InputError(f"`groups` has no class for site(s) {format_items(sites[missing])}; "
-                         "give every site a class or drop those sites.",
-                         sites=list(sites[missing]))
-    notes = []
-    if isinstance(values.dtype, pd.CategoricalDtype):
-        cats = list(values.cat.categories)
-        used = [c for c in cats if (values == c).any()]
-        unused = [c for c in cats if c not in used]
-        if unused:
-            notes.append(f"Class(es) {format_items(unused)} have no sites and were left out.")
-        lookup = {c: i for i, c in enumerate(used)}
-        codes = np.array([lookup[v] for v in values], dtype=np.intp)
-        names = [str(c) for c in used]
-    else:
-        codes, uniques = pd.factorize(values, sort=True)
-        codes = codes.astype(np.intp)
-        names = [str(u) for u in uniques]
+    """Class codes (0..G-1) in site order and the class names, read as every group test reads
+    them (:func:`read_classes`); a class of one site is allowed here, with a note."""
+    classes = read_classes(groups, sites, min_size=1)
+    names = [str(c) for c in classes.levels]
     if len(set(names)) != len(names):
         raise InputError("Two class labels of `groups` read the same as text "
                          f"({format_items(names)}); give them distinct names.")
-    if len(names) < 2:
-        raise InputError(f"`groups` holds a single class ({format_items(names)}): there is "
-                         "nothing to contrast. Give at least two classes.")
-    return codes, names, notes
+    return classes.codes.astype(np.intp), names, []
 
 
 def _combinations(n_groups: int, largest: object) -> np.ndarray:
@@ -237,7 +206,9 @@ def indicator_taxa(
     community : DataFrame or Survey
         Sites x taxa abundances (or presences, 0/1), indexed by site label.
     groups : Series
-        Class label of every site, indexed by site label (text, categorical or numbers).
+        Class label of every site, indexed by site label (text, categorical or numbers; a
+        sequence is taken in the order of the community table). Every class needs a site (a
+        class of one site is allowed, and noted); at least two classes.
     combinations : int, default 1
         Largest number of classes joined into one candidate: 1 tests single classes only; 2
         also each pair of classes (for a taxon shared by two habitats), and so on

@@ -176,11 +176,11 @@ def test_power_against_a_planted_indicator():
 
 @pytest.mark.parametrize(("change", "message"), [
     (lambda x, g: (x, g.where(g.index != "s03")), "no class for site"),
-    (lambda x, g: (x, pd.Series("a", index=g.index)), "single class"),
+    (lambda x, g: (x, pd.Series("a", index=g.index)), "one class only"),
     (lambda x, g: (x, g.iloc[1:]), "only in `community`|`groups`"),
     (lambda x, g: (x.assign(taxon0=-1), g), "non-negative"),
     (lambda x, g: (x.assign(taxon0=0), g), "occur at no site"),
-    (lambda x, g: (x, g.to_numpy()), "must be a pandas Series"),
+    (lambda x, g: (x, g.to_numpy()[:-1]), "groups"),
 ])
 def test_bad_input_is_a_clear_error(change, message):
     rng = np.random.default_rng(1)
@@ -203,12 +203,18 @@ def test_bad_options_are_clear_errors():
         indicator_taxa(x, g, n_resamples=9, rng=1).top(0)
 
 
-def test_unused_categories_and_single_site_classes_are_noted():
+def test_empty_classes_are_refused_and_single_site_classes_noted():
+    # the same reading of classes as every group test (an empty category is an error); a class
+    # of one site can still be scored, and the notes say what that means
     rng = np.random.default_rng(2)
     x = _table(rng, n=7, t=3)
     g = pd.Series(pd.Categorical(["a"] * 3 + ["b"] * 3 + ["c"], categories=["a", "b", "c", "d"]),
                   index=x.index)
-    res = indicator_taxa(x, g, n_resamples=99, rng=1)
+    with pytest.raises(InputError, match="'d' of `groups` have no sites"):
+        indicator_taxa(x, g, n_resamples=99, rng=1)
+    res = indicator_taxa(x, g.cat.remove_unused_categories(), n_resamples=99, rng=1)
     assert res.groups == ("a", "b", "c")
-    assert any("'d' have no sites" in n for n in res.notes)
     assert any("'c' have a single site" in n for n in res.notes)
+    # a sequence is taken in the order of the community table
+    same = indicator_taxa(x, list(g.astype(str)), n_resamples=99, rng=1)
+    pd.testing.assert_frame_equal(same.table, res.table)
