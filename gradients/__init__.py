@@ -15,8 +15,8 @@ every permutation test; ``fitting`` puts environmental variables onto ordination
 ``matrix`` holds the Mantel family; ``partition`` separates space from environment on the raw
 data (dbRDA, spatial eigenvectors, variation partitioning); ``groups`` compares site classes
 (PERMANOVA, dispersions, ANOSIM, MRPP, indicator taxa, site clustering); ``plot`` draws figures
-from result objects; ``report`` runs a project and writes its folder. ``gradients.cli`` parses the command
-line and calls ``report``.
+from result objects; ``report`` runs a project and writes its folder. ``gradients.cli`` parses
+the command line and calls ``report``.
 """
 
 from __future__ import annotations
