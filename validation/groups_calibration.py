@@ -15,7 +15,10 @@ normal responses and on Bray-Curtis dissimilarities of Poisson counts.
   zones tested against sites by exchanging whole sites (4 zones x 3 sites x 2 samples).
 - ANOSIM and MRPP, three unequal classes, nothing planted.
 - The dispersion test, three unequal classes with equal spreads (and, for Euclidean
-  distances, shifted centroids: a difference in location this test must not see).
+  distances, shifted centroids: a difference in location this test must not see), and three
+  classes of 8. For the record, the same small classes tested by rearranging the distances to
+  centroids themselves, the scheme the test does not use (the distances of one class share
+  its estimated centroid and are correlated).
 
 Run from the repository root (about 10 minutes on two shared cores at the defaults)::
 
@@ -43,7 +46,8 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
 from gradients import DistanceMatrix, anosim, dispersion_test, mrpp, permanova
 
-KINDS = ("one-way", "interaction", "marginal", "nested", "anosim", "mrpp", "dispersion")
+KINDS = ("one-way", "interaction", "marginal", "nested", "anosim", "mrpp", "dispersion",
+         "dispersion-small", "distances-small")
 DESCRIPTIONS = {
     "one-way": "PERMANOVA one way, classes of 5, 8, 12, nothing planted",
     "interaction": "PERMANOVA A x B (unbalanced), main effects planted (Bray-Curtis: A only), "
@@ -54,6 +58,9 @@ DESCRIPTIONS = {
     "mrpp": "MRPP, classes of 5, 8, 12, nothing planted",
     "dispersion": "dispersion test, classes of 5, 8, 12, equal spreads (Euclidean: centroids "
                   "shifted)",
+    "dispersion-small": "dispersion test, classes of 8, 8, 8, equal spreads",
+    "distances-small": "for the record, not used: the distances to centroids themselves "
+                       "rearranged, classes of 8, 8, 8",
 }
 FAST = {"pairwise": False, "dispersion": False}
 
@@ -72,9 +79,39 @@ def _one_way(rng: np.random.Generator):
     return groups, np.zeros((groups.size, 4))
 
 
+def _distances_rearranged(d: DistanceMatrix, groups: np.ndarray, n_resamples: int,
+                          seed: int) -> float:
+    """p-value of the dispersion F with the distances to centroids themselves permuted."""
+    from gradients.distance import gower_centred
+    from gradients.groups._dispersion import centroid_distances
+
+    codes = pd.factorize(pd.Series(groups))[0]
+    z, _ = centroid_distances(np.asarray(gower_centred(d).matrix), codes)
+    rng = np.random.default_rng(seed)
+    x = np.eye(codes.max() + 1)[codes]
+    sizes = x.sum(axis=0)
+
+    def f(values: np.ndarray) -> np.ndarray:  # one-way F of each row
+        fitted = np.sum((values @ x) ** 2 / sizes, axis=1)
+        between = fitted - values.sum(axis=1) ** 2 / values.shape[1]
+        within = np.sum(values * values, axis=1) - fitted
+        return (between / (x.shape[1] - 1)) / (within / (values.shape[1] - x.shape[1]))
+
+    observed = f(z[None, :])[0]
+    null = f(np.array([rng.permutation(z) for _ in range(n_resamples)]))
+    return float((1 + np.sum(null >= observed - 1e-12)) / (n_resamples + 1))
+
+
 def null_pvalue(seed: int, kind: str, metric: str, n_resamples: int) -> float:
     """The p-value of one null data set of ``kind``."""
     rng = np.random.default_rng(seed)
+    if kind in ("dispersion-small", "distances-small"):
+        groups = np.repeat(["a", "b", "c"], 8)
+        sites = [f"n{i:02d}" for i in range(24)]
+        d = DistanceMatrix(_distances(rng, np.zeros((24, 4)), metric), sites)
+        if kind == "distances-small":
+            return _distances_rearranged(d, groups, n_resamples, seed)
+        return float(dispersion_test(d, groups, n_resamples=n_resamples, rng=seed).pvalue)
     if kind in ("one-way", "anosim", "mrpp", "dispersion"):
         groups, signal = _one_way(rng)
         if kind == "dispersion" and metric == "euclidean":

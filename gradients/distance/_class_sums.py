@@ -45,6 +45,38 @@ def _class_sums(g: np.ndarray, members: np.ndarray, bounds: np.ndarray,
     return out
 
 
+@njit(parallel=True, fastmath=_FAST, **_OPTIONS)
+def _class_rows(g: np.ndarray, members: np.ndarray, bounds: np.ndarray,
+                orders: np.ndarray) -> tuple[np.ndarray, np.ndarray]:  # pragma: no cover
+    # For every slot a of class c: sum_{e in c} g[idx_a, idx_e] and g[idx_a, idx_a], with the
+    # class's rearranged sites idx sorted (slots follow that order, not the sites').
+    k = orders.shape[0]
+    n = members.size
+    c = bounds.size - 1
+    rows = np.zeros((k, n))
+    diag = np.empty((k, n))
+    for b in prange(k):
+        o = orders[b]
+        idx = np.empty(n, dtype=np.intp)
+        for a in range(n):
+            idx[a] = o[members[a]]
+        for cls in range(c):
+            lo = bounds[cls]
+            hi = bounds[cls + 1]
+            idx[lo:hi] = np.sort(idx[lo:hi])
+            for a in range(lo, hi):
+                row = g[idx[a]]
+                acc = 0.0
+                for e in range(a + 1, hi):
+                    x = row[idx[e]]
+                    acc += x
+                    rows[b, e] += x
+                d = row[idx[a]]
+                diag[b, a] = d
+                rows[b, a] += acc + d
+    return rows, diag
+
+
 class PermutedClassSums:
     """``1_c' M[o][:, o] 1_c`` for every class ``c`` of a fixed partition of the sites.
 
@@ -85,3 +117,14 @@ class PermutedClassSums:
         """Class sums for a batch of orders: shape ``(k, n_classes)``."""
         o = np.ascontiguousarray(_orders(orders, self.m.shape[0]), dtype=np.intp)
         return _class_sums(self.m, self.members, self.bounds, o)
+
+    def rows(self, orders: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Row sums within the class blocks, and the diagonal, for a batch of orders.
+
+        Returns two arrays of shape ``(k, n)``: for each slot ``a`` (slots grouped by class,
+        ``bounds`` giving each class's range) ``sum_{j in c} M[o_i, o_j]`` and ``M[o_i, o_i]``
+        for one site ``i`` of the class. Within a class the slots do not follow the sites'
+        order, so use them only for statistics that treat a class's sites alike.
+        """
+        o = np.ascontiguousarray(_orders(orders, self.m.shape[0]), dtype=np.intp)
+        return _class_rows(self.m, self.members, self.bounds, o)

@@ -16,6 +16,7 @@ from .._errors import InputError
 from .._result import ResultMixin
 from .._validation import RNGLike, check_n_jobs, check_n_resamples
 from ..distance import DistanceMatrix, GowerMatrix, gower_centred
+from ..distance._class_sums import PermutedClassSums
 from ..permutation import permutation_test
 from ._classes import (
     Classes,
@@ -108,18 +109,48 @@ def centroid_distances(g: np.ndarray, codes: np.ndarray) -> tuple[np.ndarray, in
     return np.sqrt(np.clip(squared, 0.0, None)), int(negative.sum())
 
 
-def _f_batch(z: np.ndarray, x: np.ndarray, df: int, df_res: int):
+def _one_way_f(z: np.ndarray, x: np.ndarray) -> float:
+    """One-way ANOVA F of ``z`` among the classes of the indicator matrix ``x``."""
+    n, k = x.shape
     sizes = x.sum(axis=0)
-    total = float(z.sum())
-    sst = float(np.sum((z - z.mean()) ** 2))
-    grand = total * total / z.size
+    sums = z @ x
+    between = float(np.sum(sums * sums / sizes) - z.sum() ** 2 / n)
+    within = float(np.sum(z * z) - np.sum(sums * sums / sizes))
+    return (between / (k - 1)) / (within / (n - k))
+
+
+def _residual_batch(g: np.ndarray, codes: np.ndarray):
+    """F of the distances to class centroids after the sites' residuals are rearranged.
+
+    ``E = M G M``, with ``M`` the within-class centring, holds the inner products of the
+    sites' deviations from their class centroids (in the full principal-coordinate space).
+    For an order ``o`` every site takes the deviation of site ``o_i``; the centroids of the
+    rearranged deviations are found again and the distances to them are
+    ``E_o,ii - 2 mean_{j in c} E_o,ij + mean_{j,k in c} E_o,jk``, from the kernel's sums over
+    the class blocks.
+    """
+    x = np.zeros((codes.size, int(codes.max()) + 1))
+    x[np.arange(codes.size), codes] = 1.0
+    sizes = x.sum(axis=0)
+    gx = g @ x / sizes
+    e = g - gx @ x.T - x @ gx.T + x @ ((x.T @ g @ x) / np.outer(sizes, sizes)) @ x.T
+    kernel = PermutedClassSums((e + e.T) / 2.0, codes)
+    bounds = kernel.bounds
+    slot_size = np.repeat(sizes, np.diff(bounds))
+    n, k = codes.size, sizes.size
 
     def statistic(orders: np.ndarray) -> np.ndarray:
-        sums = z[orders] @ x  # (k, groups)
-        ssb = np.sum(sums * sums / sizes, axis=1) - grand
-        ssw = np.maximum(sst - ssb, 0.0)
+        rows, diag = kernel.rows(orders)
+        block = np.add.reduceat(rows, bounds[:-1], axis=1)  # (k, classes): S_c
+        squared = diag - 2.0 * rows / slot_size + np.repeat(block / sizes ** 2, np.diff(bounds),
+                                                            axis=1)
+        z = np.sqrt(np.clip(squared, 0.0, None))
+        sums = np.add.reduceat(z, bounds[:-1], axis=1)
+        fitted = np.sum(sums * sums / sizes, axis=1)
+        between = fitted - z.sum(axis=1) ** 2 / n
+        within = np.sum(z * z, axis=1) - fitted
         with np.errstate(divide="ignore", invalid="ignore"):
-            return (ssb / df) / (ssw / df_res)
+            return (between / (k - 1)) / (within / (n - k))
 
     return statistic
 
@@ -138,8 +169,8 @@ def dispersion_from_gower(gm: GowerMatrix, classes: Classes, *, strata: np.ndarr
             f"{classes.name} ({float(z[0]):.6g}), so spreads cannot be compared (classes of two "
             "sites always give this). Use classes of at least three sites.",
             columns=[classes.name])
-    statistic = _f_batch(z, x, df, df_res)
-    observed = float(statistic(np.arange(n)[None, :])[0])
+    statistic = _residual_batch(np.asarray(gm.matrix), classes.codes)
+    observed = _one_way_f(z, x)
     plan = group_plan(labels, classes.codes, strata=strata, n_resamples=n_resamples, rng=rng,
                       interchangeable=True)
     with numba_threads(n_jobs):
@@ -220,11 +251,15 @@ def dispersion_test(
     Each site's distance ``z`` to the centroid of its class is found in the full
     principal-coordinate space of ``d``, negative eigenvalues included (see
     :func:`centroid_distances`); the statistic is the one-way ANOVA F of ``z`` among the
-    classes [1]_. Under the null hypothesis of equal spreads the distances are exchangeable
-    among the classes, so the p-value comes from reassigning them (the permutation engine's
-    'relabel' scheme: each distinct reassignment once when exact) rather than from the F
-    distribution, which needs normal ``z``. The centroid is the mean; a class's spatial median
-    is not offered.
+    classes [1]_. The p-value comes from permutations rather than the F distribution, which
+    needs normal ``z``: under equal spreads the sites' deviations from their class centroids
+    are exchangeable among the classes, so the deviations are rearranged (the permutation
+    engine's 'relabel' scheme: each distinct reassignment once when exact), the centroids of
+    the rearranged deviations found again and ``F`` recomputed from the new distances. The
+    distances of one class share its estimated centroid and are correlated; rearranging the
+    distances themselves ignores that and rejected a true null at about 0.08 instead of 0.05
+    with classes of 8 sites (1,500 simulated data sets), where this scheme stays near 0.05
+    (docs/groups.md). The centroid is the mean; a class's spatial median is not offered.
 
     References
     ----------

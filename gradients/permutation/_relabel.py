@@ -51,6 +51,8 @@ def count_relabellings(codes: np.ndarray, strata: tuple[np.ndarray, ...],
     segments = strata if strata else (np.arange(codes.size, dtype=np.intp),)
     per = [[s for s in _sizes(codes, members) if s] for members in segments]
     log_total = sum(_log_multinomial(sizes) for sizes in per)
+    swaps = pd.Series(per[0]).value_counts().tolist() if interchangeable and not strata else []
+    log_total -= sum(math.lgamma(m + 1) for m in swaps)
     if log_total > math.log(cap + 1) + 1.0:
         return cap + 1
     total = 1
@@ -59,38 +61,61 @@ def count_relabellings(codes: np.ndarray, strata: tuple[np.ndarray, ...],
         for s in sizes:
             total *= math.comb(remaining, s)
             remaining -= s
-    if interchangeable and not strata:
-        for count in pd.Series(per[0]).value_counts().tolist():
-            total //= math.factorial(count)
+    for m in swaps:
+        total //= math.factorial(m)
     return total if total <= cap else cap + 1
+
+
+def _without(left: tuple[int, ...], taken: tuple[int, ...]) -> tuple[int, ...]:
+    drop = set(taken)
+    return tuple(p for p in left if p not in drop)
+
+
+def _equal_blocks(pool: tuple[int, ...], count: int,
+                  size: int) -> Iterator[list[tuple[int, ...]]]:
+    """Every split of ``pool`` into ``count`` unlabelled blocks of ``size``, blocks in order of
+    their smallest member (each block takes the smallest site not yet placed)."""
+    if count == 0:
+        yield []
+        return
+    first, rest = pool[0], pool[1:]
+    for others in itertools.combinations(rest, size - 1):
+        block = (first, *others)
+        for tail in _equal_blocks(_without(rest, others), count - 1, size):
+            yield [block, *tail]
 
 
 def _assignments(positions: np.ndarray, groups: list[np.ndarray],
                  interchangeable: bool) -> Iterator[list[tuple[int, ...]]]:
     """Every way to split ``positions`` into sets of the sizes of ``groups``, in group order.
 
-    With ``interchangeable``, of the splits that differ only by which equal-sized group gets
-    which set, the one whose equal-sized groups have increasing smallest members is kept.
+    With ``interchangeable``, groups of one size form a run: the run's sites are chosen first,
+    then split into unlabelled blocks, given to the run's groups in order of their smallest
+    members (the observed split has that order, groups being numbered by first appearance).
+    Each split up to swapping equal-sized groups is then produced once, with no rejected or
+    dead-end branch.
     """
-    previous_same_size = []
-    for g, members in enumerate(groups):
-        earlier = [h for h in range(g) if groups[h].size == members.size]
-        previous_same_size.append(earlier[-1] if (interchangeable and earlier) else None)
+    if interchangeable:
+        by_size: dict[int, list[int]] = {}
+        for g, members in enumerate(groups):
+            by_size.setdefault(int(members.size), []).append(g)
+        runs = list(by_size.values())
+    else:
+        runs = [[g] for g in range(len(groups))]
 
-    def extend(g: int, left: tuple[int, ...],
-               chosen: list[tuple[int, ...]]) -> Iterator[list[tuple[int, ...]]]:
-        if g == len(groups):
-            yield chosen
+    def extend(r: int, left: tuple[int, ...],
+               chosen: dict[int, tuple[int, ...]]) -> Iterator[list[tuple[int, ...]]]:
+        if r == len(runs):
+            yield [chosen[g] for g in range(len(groups))]
             return
-        floor = previous_same_size[g]
-        for pick in itertools.combinations(left, groups[g].size):
-            if floor is not None and pick[0] < chosen[floor][0]:
-                continue
-            taken = set(pick)
-            rest = tuple(p for p in left if p not in taken)
-            yield from extend(g + 1, rest, [*chosen, pick])
+        run = runs[r]
+        size = int(groups[run[0]].size)
+        for pool in itertools.combinations(left, size * len(run)):
+            rest = _without(left, pool)
+            for blocks in _equal_blocks(pool, len(run), size):
+                yield from extend(r + 1, rest, {**chosen, **dict(zip(run, blocks, strict=True))})
 
-    yield from extend(0, tuple(int(p) for p in positions), [])
+    yield from extend(0, tuple(int(p) for p in positions), {})
 
 
 def _stratum_orders(codes: np.ndarray, members: np.ndarray,

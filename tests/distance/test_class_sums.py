@@ -45,3 +45,24 @@ def test_one_way_sum_of_squares_equals_the_trace_kernel():
 def test_class_sums_refuse_bad_codes():
     with pytest.raises(InputError, match="class number"):
         PermutedClassSums(np.eye(3), np.array([0, 1]))
+
+
+def test_row_sums_within_blocks_equal_the_rearranged_rows():
+    # two ways: each class's multiset of (row sum within the block, diagonal entry) equals the
+    # one computed with np.ix_ on the rearranged matrix
+    rng = np.random.default_rng(2)
+    a = rng.normal(size=(14, 14))
+    m = a + a.T
+    codes = rng.integers(0, 3, size=14)
+    kernel = PermutedClassSums(m, codes)
+    orders = np.array([rng.permutation(14) for _ in range(6)])
+    rows, diag = kernel.rows(orders)
+    for b, o in enumerate(orders):
+        mo = m[np.ix_(o, o)]
+        for c in range(3):
+            idx = np.flatnonzero(codes == c)
+            lo, hi = kernel.bounds[c], kernel.bounds[c + 1]
+            expected = sorted(zip(mo[np.ix_(idx, idx)].sum(axis=1), np.diag(mo)[idx],
+                                  strict=True))
+            got = sorted(zip(rows[b, lo:hi], diag[b, lo:hi], strict=True))
+            np.testing.assert_allclose(np.array(got), np.array(expected), rtol=1e-12)

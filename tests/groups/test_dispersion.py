@@ -70,19 +70,69 @@ def test_non_euclidean_distances_use_real_minus_imaginary_axes():
     assert any("imaginary" in note for note in res.notes)
 
 
+def _f_of_centroid_distances(y, labels):
+    z = np.empty(len(labels))
+    for g in np.unique(labels):
+        idx = labels == g
+        z[idx] = np.linalg.norm(y[idx] - y[idx].mean(axis=0), axis=1)
+    return stats.f_oneway(*[z[labels == g] for g in np.unique(labels)]).statistic
+
+
 def test_exact_dispersion_pvalue_equals_listing_every_split():
-    # exact enumeration: C(8, 4) / 2 = 35 splits of the distances to centroids, F from scipy
+    # Exact enumeration, written out: the sites' deviations from their class centroids are
+    # reassigned to the classes in every one of the C(8, 4) / 2 = 35 splits, the centroids of
+    # the reassigned deviations recomputed, and F (scipy f_oneway) of the new distances taken
+    # (Anderson 2006: permutation of residuals).
     y = np.array([[0.0, 0.1], [0.2, 0.0], [0.1, 0.3], [0.05, 0.2],
                   [3.0, 1.0], [1.0, 3.0], [-1.0, 2.0], [2.5, -0.5]])
     groups = np.array(list("aaaabbbb"))
+    resid = y.copy()
+    for g in "ab":
+        resid[groups == g] -= y[groups == g].mean(axis=0)
     res = dispersion_test(DistanceMatrix(pdist(y), _sites(8)), groups, rng=0)
-    z = res.distances["distance"].to_numpy()
     values = []
     for first in itertools.combinations(range(8), 4):
-        lab = np.isin(np.arange(8), first)
-        values.append(stats.f_oneway(z[lab], z[~lab]).statistic)
+        if 0 not in first:  # the other labelling of a split already listed
+            continue
+        lab = np.where(np.isin(np.arange(8), first), "a", "b")
+        values.append(_f_of_centroid_distances(resid, lab))
+    assert len(values) == 35
     assert res.exact and res.n_resamples == 35
+    assert res.statistic == pytest.approx(_f_of_centroid_distances(y, groups), rel=1e-9)
+    np.testing.assert_allclose(np.sort(res.null_distribution[1:]),
+                               np.sort(np.delete(values, 0)), rtol=1e-8)
     assert res.pvalue == pytest.approx(np.mean(np.array(values) >= res.statistic - 1e-9))
+
+
+def test_permuted_statistic_equals_recomputing_centroids_on_bray_curtis():
+    # two ways on a non-Euclidean matrix: the kernel's F for random reassignments against
+    # PCoA coordinates of all axes (real minus imaginary, numpy eigh) moved and re-centred
+    from gradients.distance import gower_centred
+    from gradients.groups._dispersion import _residual_batch
+
+    rng = np.random.default_rng(8)
+    counts = rng.poisson(2.0, size=(15, 8))
+    counts[counts.sum(axis=1) == 0, 0] = 1
+    codes = np.repeat([0, 1, 2], [4, 5, 6])
+    dm = DistanceMatrix(pdist(counts, "braycurtis"), _sites(15))
+    g = np.asarray(gower_centred(dm).matrix)
+    lam, vec = np.linalg.eigh(g)
+    keep = np.abs(lam) > 1e-10 * np.abs(lam).max()
+    coords = vec[:, keep] * np.sqrt(np.abs(lam[keep]))
+    sign = np.sign(lam[keep])
+    resid = coords.copy()
+    for c in range(3):
+        resid[codes == c] -= coords[codes == c].mean(axis=0)
+    orders = np.array([rng.permutation(15) for _ in range(12)])
+    got = _residual_batch(g, codes)(orders)
+    for o, value in zip(orders, got, strict=True):
+        moved = resid[o]
+        z = np.empty(15)
+        for c in range(3):
+            dev = moved[codes == c] - moved[codes == c].mean(axis=0)
+            z[codes == c] = np.sqrt(np.clip((dev * dev) @ sign, 0, None))
+        assert value == pytest.approx(stats.f_oneway(*[z[codes == c] for c in range(3)])
+                                      .statistic, rel=1e-8)
 
 
 def _spread_survey(spreads, seed):

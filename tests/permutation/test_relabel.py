@@ -50,11 +50,13 @@ def _between_ss(y, labels):
         (list("xxyyzzz"), True, 105),
         # interleaved labels: the count does not depend on the order of the sites
         (list("abab"), True, 3),
+        # six pairs: 12! / (2^6 6!) = 10,395 pairings (more than 999: asked for below)
+        (list("aabbccddeeff"), True, 10395),
     ],
 )
 def test_relabel_counts_and_lists_each_reassignment_once(labels, interchangeable, count):
     plan = permutation_plan(len(labels), groups=labels, interchangeable=interchangeable,
-                            n_resamples=999, rng=0)
+                            n_resamples=max(999, count), rng=0)
     assert plan.scheme == "relabel" and plan.exact and plan.size == count == plan.n_distinct
     orders = np.concatenate(list(plan.batches()))
     assert (orders[0] == np.arange(len(labels))).all()  # identity first
