@@ -36,6 +36,9 @@ _EXPORTS: dict[str, str] = {
     "demo_survey": "data",
     "simulate_survey": "data",
     "Decision": "data",
+    "texture_class": "data",
+    "guideline_quotients": "data",
+    "GuidelineQuotientsResult": "data",
     # distance
     "DistanceMatrix": "distance",
     "dissimilarity": "distance",

@@ -9,15 +9,17 @@ from __future__ import annotations
 
 import os
 from collections.abc import Mapping
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Any
 
+import numpy as np
 import pandas as pd
 
-from .._errors import InputError
+from .._errors import InputError, format_items
 from ._files import RawTable, read_file, table_from_frame
 from ._locations import parse_locations
 from ._log import Decision
+from ._longform import pivot_long
 from ._options import Options
 from ._policies import (
     apply_censored,
@@ -27,9 +29,9 @@ from ._policies import (
     apply_missing,
 )
 from ._sites import MIN_SITES, align_sites, site_tables
-from ._tables import parse_community, parse_environment
+from ._tables import apply_units, parse_community, parse_environment, split_units_row
 
-__all__ = ["Parts", "build_parts", "raw_table", "same_table"]
+__all__ = ["Parts", "build_parts", "derive", "raw_table", "same_table"]
 
 
 @dataclass
@@ -43,10 +45,18 @@ class Parts:
     limits: pd.DataFrame
     log: tuple[Decision, ...]
     sources: dict[str, str | None]
+    units: dict[str, str] = field(default_factory=dict)
+    quantities: dict[str, str] = field(default_factory=dict)
 
 
 def build_parts(raws: dict[str, RawTable], opts: Options, *, shared_table: bool = False) -> Parts:
     """Every check of :class:`Survey`, in its documented order, on the raw tables."""
+    if "environment" in raws:
+        wide = pivot_long(raws["environment"], opts.site_column, opts.quantities)
+        if wide is not None:
+            raws = {**raws, "environment": wide}
+        else:
+            split_units_row(raws["environment"], opts.site_column)
     tables = site_tables(raws, opts)
     log: list[Decision] = [d for raw in raws.values() for d in raw.log]
     community = parse_community(tables["community"])
@@ -66,7 +76,13 @@ def build_parts(raws: dict[str, RawTable], opts: Options, *, shared_table: bool 
     if "environment" in tables:
         env, cens, env_log = parse_environment(tables["environment"], opts)
         log.extend(env_log)
+        env, units, quantities, unit_log = apply_units(env, tables["environment"], opts)
+        log.extend(unit_log)
     else:
+        units, quantities = {}, {}
+        if opts.units or opts.quantities:
+            raise InputError("`units` and `quantities` describe environmental columns, but no "
+                             "environmental table was given.")
         env = pd.DataFrame(index=community.index.copy())
         cens = pd.DataFrame(index=community.index.copy())
 
@@ -120,7 +136,10 @@ def build_parts(raws: dict[str, RawTable], opts: Options, *, shared_table: bool 
     cens = cens.astype(bool)
     sources = {role: (raws[role].path if role in raws else None)
                for role in ("community", "environment", "locations")}
-    return Parts(community, env, locations, cens, limits, tuple(log), sources)
+    kept = set(env.columns)
+    units = {c: u for c, u in units.items() if c in kept}
+    quantities = {c: q for c, q in quantities.items() if c in kept}
+    return Parts(community, env, locations, cens, limits, tuple(log), sources, units, quantities)
 
 
 def raw_table(obj: object, role: str, *, sheet: Any = None, layer: Any = None,
@@ -173,3 +192,25 @@ def same_table(environment: object, locations: object) -> bool:
             return False
     return False
 
+
+def derive(parts: Parts, columns: pd.DataFrame, decision: Decision,
+           units: Mapping[str, str] | None = None) -> Parts:
+    """``parts`` with numeric ``columns`` (labelled by site) added to the environment and
+    ``decision`` to the log; the new columns are not censored."""
+    env = parts.environment
+    clash = [c for c in columns.columns if c in env.columns]
+    if clash:
+        raise InputError(f"The environmental table already has column(s) "
+                         f"{format_items(clash)}; rename them so that the derived column(s) can "
+                         "be added.", columns=clash)
+    sites = env.index
+    added = columns.reindex(sites).astype(float)
+    new_env = pd.concat([env, added], axis=1)
+    new_env.columns = pd.Index(list(new_env.columns), dtype=object)
+    cens = pd.concat([parts.censored, pd.DataFrame(False, index=sites, columns=added.columns)],
+                     axis=1).astype(bool)
+    limits = pd.concat([parts.limits, pd.DataFrame(np.nan, index=sites, columns=added.columns)],
+                       axis=1)
+    return Parts(parts.community, new_env, parts.locations, cens, limits,
+                 (*parts.log, decision), parts.sources, {**parts.units, **dict(units or {})},
+                 parts.quantities)

@@ -77,6 +77,9 @@ class RawTable:
     log: list[Decision] = field(default_factory=list)
     geo: object | None = None
     from_file: bool = False
+    #: Units of columns: column -> one unit text (a units row), or one per row of ``frame``
+    #: (a long-form laboratory file); see :mod:`._units`.
+    units: dict[str, object] = field(default_factory=dict)
 
     def where(self, i: int) -> str:
         """Where row ``i`` (0-based position in ``frame``) is, for a message."""

@@ -7,7 +7,7 @@ The policy tables here name the choices of ``missing=``, ``empty_sites=``, ``emp
 from __future__ import annotations
 
 from collections.abc import Iterable, Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
@@ -15,6 +15,7 @@ import numpy as np
 from .._errors import InputError
 from .._validation import check_choice
 from ._censored import CENSORED_POLICIES
+from ._units import check_quantities, check_units
 
 __all__ = [
     "CONSTANT_POLICIES",
@@ -49,6 +50,8 @@ class Options:
     empty_sites: str
     empty_taxa: str
     constant: str
+    units: dict[str, str] = field(default_factory=dict)
+    quantities: dict[str, str] = field(default_factory=dict)
 
 
 def check_options(
@@ -62,6 +65,8 @@ def check_options(
     empty_sites: object,
     empty_taxa: object,
     constant: object,
+    units: object = None,
+    quantities: object = None,
 ) -> Options:
     """The options checked (types and policy names), with the messages of the suite."""
     if not isinstance(site_column, str) or not site_column.strip():
@@ -96,5 +101,7 @@ def check_options(
         empty_sites=check_choice("empty_sites", empty_sites, EMPTY_SITE_POLICIES),
         empty_taxa=check_choice("empty_taxa", empty_taxa, EMPTY_TAXON_POLICIES),
         constant=check_choice("constant", constant, CONSTANT_POLICIES),
+        units=check_units(units),
+        quantities=check_quantities(quantities),
     )
 

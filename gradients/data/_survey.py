@@ -17,7 +17,7 @@ import numpy as np
 import pandas as pd
 
 from .._errors import InputError, format_items
-from ._assemble import Parts, build_parts, raw_table, same_table
+from ._assemble import Parts, build_parts, derive, raw_table, same_table
 from ._log import Decision
 from ._options import (
     CONSTANT_POLICIES,
@@ -79,6 +79,15 @@ class Survey:
         no information about turnover, so by default they are dropped and the log says so.
     constant : {"error", "drop"}, default "error"
         What to do with environmental columns that take one value at every site.
+    units : dict, optional
+        Unit of environmental columns, e.g. ``{"Cu": "µg/g", "EC": "mS/m"}``; a units row under
+        the header of the environmental table gives them too (see ``docs/soil-water.md``).
+        Values are converted to the one unit of their quantity (mg/kg, mg/L, µS/cm, ...) and
+        each conversion is recorded in `log`.
+    quantities : dict, optional
+        Quantity of environmental columns (``"mass fraction"``, ``"concentration in water"``,
+        ``"percent"``, ``"pH"``, ``"conductivity"``, ...); by default inferred from the units.
+        A unit that cannot be converted to its column's quantity is an error.
 
     Attributes
     ----------
@@ -95,6 +104,8 @@ class Survey:
         Like `environment`: the detection limit of each censored cell, NaN elsewhere.
     log : tuple of Decision
         Every decision taken on the input, in order.
+    units, quantities : dict
+        The unit (after conversion) and the quantity of each environmental column that has one.
     sources : dict
         The file each table was read from (None for DataFrames).
 
@@ -135,7 +146,7 @@ limit (substitution, common practice; biased, Helsel 2012).
     """
 
     __slots__ = ("_censored", "_community", "_environment", "_frozen", "_limits", "_locations",
-                 "_log", "_sources")
+                 "_log", "_quantities", "_sources", "_units")
 
     def __init__(
         self,
@@ -153,9 +164,13 @@ limit (substitution, common practice; biased, Helsel 2012).
         empty_sites: str = "error",
         empty_taxa: str = "drop",
         constant: str = "error",
+        units: Mapping[str, str] | None = None,
+        quantities: Mapping[str, str] | None = None,
     ) -> None:
         opts = check_options(site_column, coordinates, crs, factors, shared_sites_only, missing,
-                              censored, empty_sites, empty_taxa, constant)
+                              censored, empty_sites, empty_taxa, constant,
+                              None if units is None else dict(units),
+                              None if quantities is None else dict(quantities))
         raws = {"community": raw_table(community, "community", allow_paths=False)}
         if environment is not None:
             raws["environment"] = raw_table(environment, "environment", allow_paths=False)
@@ -171,6 +186,8 @@ limit (substitution, common practice; biased, Helsel 2012).
         object.__setattr__(self, "_limits", parts.limits)
         object.__setattr__(self, "_log", parts.log)
         object.__setattr__(self, "_sources", dict(parts.sources))
+        object.__setattr__(self, "_units", dict(parts.units))
+        object.__setattr__(self, "_quantities", dict(parts.quantities))
         object.__setattr__(self, "_frozen", True)
 
     @classmethod
@@ -220,6 +237,16 @@ limit (substitution, common practice; biased, Helsel 2012).
     def log(self) -> tuple[Decision, ...]:
         """Every decision taken on the input, in order."""
         return self._log
+
+    @property
+    def units(self) -> dict[str, str]:
+        """Unit of each environmental column that has one (after conversion), e.g. mg/kg."""
+        return dict(self._units)
+
+    @property
+    def quantities(self) -> dict[str, str]:
+        """Quantity of each environmental column that has one, e.g. ``"mass fraction"``."""
+        return dict(self._quantities)
 
     @property
     def sources(self) -> dict[str, str | None]:
@@ -287,8 +314,18 @@ limit (substitution, common practice; biased, Helsel 2012).
             limits=self._limits.loc[index],
             log=(*self._log, record),
             sources=self._sources,
+            units=self._units,
+            quantities=self._quantities,
         )
         return Survey._from_parts(parts)
+
+    def _with_derived(self, columns: pd.DataFrame, decision: Decision,
+                      units: Mapping[str, str] | None = None) -> Survey:
+        """A new Survey whose environment gains ``columns`` (derived from the survey, such as the
+        mean guideline quotient), with ``decision`` in the log (see :func:`._assemble.derive`)."""
+        parts = Parts(self._community, self._environment, self._locations, self._censored,
+                      self._limits, self._log, self._sources, self._units, self._quantities)
+        return Survey._from_parts(derive(parts, columns, decision, units))
 
     def describe(self) -> pd.DataFrame:
         """One row per table: its source, sites, columns, kinds of columns and a short note.
@@ -338,7 +375,8 @@ limit (substitution, common practice; biased, Helsel 2012).
             return False
         same = (self._community.equals(other._community)
                 and self._environment.equals(other._environment)
-                and self._censored.equals(other._censored))
+                and self._censored.equals(other._censored)
+                and self._units == other._units and self._quantities == other._quantities)
         if self._locations is None or other._locations is None:
             return same and self._locations is None and other._locations is None
         return (same and self._locations.crs == other._locations.crs
@@ -382,6 +420,8 @@ def read_survey(
     empty_sites: str = "error",
     empty_taxa: str = "drop",
     constant: str = "error",
+    units: Mapping[str, str] | None = None,
+    quantities: Mapping[str, str] | None = None,
 ) -> Survey:
     """Read a survey from files (or DataFrames) and validate it.
 
@@ -402,7 +442,7 @@ def read_survey(
     layer : str, int or mapping, optional
         Layer of a GeoPackage, as for `sheet`.
     coordinates, crs, factors, shared_sites_only, missing, censored, empty_sites, empty_taxa, \
-constant
+constant, units, quantities
         As for :class:`Survey`.
 
     Returns
@@ -434,7 +474,9 @@ constant
     (60, 40)
     """
     opts = check_options(site_column, coordinates, crs, factors, shared_sites_only, missing,
-                          censored, empty_sites, empty_taxa, constant)
+                          censored, empty_sites, empty_taxa, constant,
+                          None if units is None else dict(units),
+                          None if quantities is None else dict(quantities))
     raws = {"community": raw_table(community, "community", sheet=sheet, layer=layer,
                               allow_paths=True)}
     if environment is not None:

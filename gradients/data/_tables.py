@@ -2,6 +2,9 @@
 
 Abundances must be non-negative numbers (not text, censored or empty); an environmental column
 is numeric (with values below a detection limit marked for :mod:`._policies`) or categorical.
+A units row under the header is taken out before the sites are read (:func:`split_units_row`),
+and numeric columns with units are converted to the one unit of their quantity
+(:func:`apply_units`, with :mod:`._units`).
 """
 
 from __future__ import annotations
@@ -11,11 +14,13 @@ import pandas as pd
 
 from .._errors import InputError, format_items
 from ._cells import CENSORED, MISSING, MISSING_TOKENS, NUMBER, TEXT, non_detect_hint, parse_column
+from ._files import RawTable
 from ._log import Decision
 from ._options import Options
 from ._sites import SiteTable, cap, cell_label, cell_listing
+from ._units import convert_column, is_unit, parse_unit
 
-__all__ = ["parse_community", "parse_environment"]
+__all__ = ["apply_units", "parse_community", "parse_environment", "split_units_row"]
 
 
 def parse_community(table: SiteTable) -> pd.DataFrame:
@@ -143,3 +148,116 @@ def parse_environment(table: SiteTable, opts: Options
     mask.columns = env.columns.copy()
     return env, mask, log
 
+
+
+_UNIT_ROW_WORDS = {"", "unit", "units", "unit:", "units:"}
+
+
+def split_units_row(raw: RawTable, site_column: str) -> None:
+    """Take a units row out of an environment table (in place), keeping its units.
+
+    The first row under the header is a units row when its site cell is empty or says "unit"
+    (or "units") and every other cell is empty, "-" or reads as a unit (``mg/kg``, ``%``,
+    ``pH``), at least one of them a unit. The units are kept in ``raw.units`` and the row is
+    recorded in the log.
+    """
+    frame = raw.frame
+    if frame.shape[0] < 2:
+        return
+    names = [str(c).strip() for c in frame.columns]
+    site = next((c for c in names if c == site_column), None) or next(
+        (c for c in names if c.casefold() == site_column.strip().casefold()), None)
+    if site is None:
+        return
+    first = frame.iloc[0]
+    cells = {str(c).strip(): first[c] for c in frame.columns}
+    label = cells.pop(site)
+    label_text = "" if label is None or (isinstance(label, float) and np.isnan(label)) else str(
+        label).strip().lower()
+    if label_text not in _UNIT_ROW_WORDS:
+        return
+    found: dict[str, str] = {}
+    for col, cell in cells.items():
+        if cell is None or (isinstance(cell, float) and np.isnan(cell)):
+            continue
+        if not isinstance(cell, str):
+            return
+        text = cell.strip()
+        if text in ("", "-"):
+            continue
+        if not is_unit(text):
+            return
+        found[col] = text
+    if not found:
+        return
+    where = raw.where(0)
+    raw.frame = frame.iloc[1:].reset_index(drop=True)
+    if raw.rows is not None:
+        raw.rows = raw.rows[1:]
+    raw.units = {**found, **{k: v for k, v in raw.units.items() if k not in found}}
+    raw.log.append(Decision(
+        "units-row",
+        f"In {raw.source}, {where} was read as a units row (not a site): "
+        f"{', '.join(f'{c} in {u}' for c, u in found.items())}.",
+        len(found), columns=tuple(found)))
+
+
+def apply_units(env: pd.DataFrame, table: SiteTable, opts: Options
+                ) -> tuple[pd.DataFrame, dict[str, str], dict[str, str], list[Decision]]:
+    """Numeric columns converted to the one unit of their quantity.
+
+    Units come from the table (a units row, or one per row of a long-form file) or from
+    ``units=``; quantities from ``quantities=`` or the units. Returns the environment, the unit
+    and the quantity of each column that has one, and the conversions made.
+    """
+    raw = table.raw
+    log: list[Decision] = []
+    unknown = [c for c in [*opts.units, *opts.quantities] if c not in env.columns]
+    if unknown:
+        raise InputError(
+            f"`units` or `quantities` name column(s) {format_items(sorted(set(unknown)))} that "
+            f"are not in {raw.source}; its columns are {format_items(list(env.columns))}.",
+            file=raw.path, columns=sorted(set(unknown)))
+    units: dict[str, str] = {}
+    quantities: dict[str, str] = {}
+    out = env.copy()
+    sites = list(env.index)
+
+    def locate(i: int) -> str:
+        where = table.where(sites[i]).lstrip(", ")
+        return f"site {sites[i]!r}" + (f" ({where})" if where else "")
+
+    for col in env.columns:
+        in_table = raw.units.get(col)
+        given = opts.units.get(col)
+        declared = opts.quantities.get(col)
+        if in_table is None and given is None and declared is None:
+            continue
+        if isinstance(env[col].dtype, pd.CategoricalDtype):
+            raise InputError(
+                f"{cap(raw.source)}: column {col!r} is categorical (text), so it cannot have "
+                "a unit or a quantity. Remove its unit, or correct the text cells so that the "
+                "column reads as numbers.", file=raw.path, columns=[col])
+        if isinstance(in_table, str) and given is not None:
+            a, b = parse_unit(in_table), parse_unit(given)
+            if a is None or b is None or a.text != b.text:
+                raise InputError(
+                    f"{cap(raw.source)}: column {col!r} is in {in_table!r} by the table's units "
+                    f"row but in {given!r} by `units`. Give the unit once, or make the two "
+                    "agree.", file=raw.path, columns=[col])
+        if isinstance(in_table, list):
+            per_row = [in_table[table.positions[s]] for s in sites]
+        else:
+            text = in_table if isinstance(in_table, str) else given
+            per_row = [text] * len(sites)
+        values, unit, quantity, decision = convert_column(
+            env[col].to_numpy(dtype=float), per_row, column=col, source=cap(raw.source),
+            declared=declared, locate=locate, file=raw.path)
+        out[col] = values
+        if unit is not None:
+            units[col] = unit
+        if quantity is not None:
+            quantities[col] = quantity
+        if decision is not None:
+            log.append(decision)
+    return out, units, quantities, log

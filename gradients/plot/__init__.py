@@ -16,6 +16,8 @@ draws its figures with these same functions.
   (distances to class centroids behind a dispersion test).
 - Hypotheses: :func:`hypotheses`; drawn from tidy tables ahead of their stages:
   :func:`ranking`, :func:`turnover_curves`, :func:`partition`.
+- Soil and water: :func:`texture_triangle` (sites on the soil texture triangle over the
+  class boundaries); :func:`quotient_map` (sites on a map by exceedance of screening values).
 - :func:`house_style`: the house style as a ``with`` block, to restyle or save a figure.
 
 No pyplot is used: figures are built on :class:`matplotlib.figure.Figure` directly, so nothing
@@ -27,6 +29,7 @@ from ._groups import dendrogram, dispersion
 from ._hypotheses import hypotheses, partition, ranking, turnover_curves
 from ._matrix import correlogram, distance_decay
 from ._ordination import arrows, centroids, legend, sites, taxa
+from ._soil import quotient_map, texture_triangle
 from ._style import house_style
 from ._surfaces import shepard, surface
 
@@ -42,10 +45,12 @@ __all__ = [
     "hypotheses",
     "legend",
     "partition",
+    "quotient_map",
     "ranking",
     "shepard",
     "sites",
     "surface",
     "taxa",
+    "texture_triangle",
     "turnover_curves",
 ]

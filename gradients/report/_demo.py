@@ -11,7 +11,7 @@ from typing import Any
 from .._errors import InputError
 from .._validation import RNGLike, check_rng
 from ._project import project_from_dict
-from ._run import analyse, write_report
+from ._run import analyse, read_project_survey, write_report
 from ._writers import OutputFolder
 
 __all__ = ["DEMO_HYPOTHESES", "DEMO_PERMUTATIONS", "DEMO_SEED", "demo_seed", "init_project",
@@ -59,6 +59,22 @@ log10 = ["Cu", "Zn", "Pb", "Cd"]      # right-skewed concentrations
 compositions = [["sand", "silt", "clay"]]  # parts that sum to 100 %: isometric log-ratios
 factors = ["habitat", "zone"]         # categorical variables: class centroids, groups
 surfaces = ["Cu", "sand"]             # variables drawn as smooth surfaces on the ordination
+texture = ["sand", "silt", "clay"]    # sand, silt, clay (%): USDA texture classes and triangle
+screening = "{data_folder}/screening.csv"    # screening table: guideline quotients (screening only;
+                                      # check its values against the publication before use)
+screening_kind = "probable effect"    # which values of the table the quotients use
+
+[environment.units]                   # units of the columns (a units row in the table also works)
+Cu = "mg/kg dw"
+Zn = "mg/kg dw"
+Pb = "mg/kg dw"
+Cd = "mg/kg dw"
+sand = "%"
+silt = "%"
+clay = "%"
+pH = "pH"
+organic_matter = "%"
+conductivity = "µS/cm"
 
 # Each hypothesis is a named group of variables; each is tested against community turnover
 # while controlling for the others and for space.
@@ -106,7 +122,7 @@ def init_project(folder: str | Path) -> Path:
                          "new folder for the template project.")
     data = folder / "data"
     data.mkdir(parents=True, exist_ok=True)
-    for name in ("community.csv", "environment.csv", "locations.gpkg"):
+    for name in ("community.csv", "environment.csv", "locations.gpkg", "screening.csv"):
         shutil.copyfile(DEMO_DIR / name, data / name)
     project = folder / "project.toml"
     project.write_text(project_template(), encoding="utf-8")
@@ -169,7 +185,7 @@ def run_demo(out: str | Path, *, force: bool = False, n_resamples: int = DEMO_PE
     Path
         The report folder.
     """
-    from ..data import demo_survey, simulate_survey
+    from ..data import simulate_survey
     from ..data._demo import DEFAULT_SEED, DEMO_DIR
 
     if seed is not None:
@@ -182,7 +198,7 @@ def run_demo(out: str | Path, *, force: bool = False, n_resamples: int = DEMO_PE
     run_seed = demo_seed(rng)
     OutputFolder(out, force=force)  # refuse early
     project = project_from_dict(demo_settings(n_resamples, run_seed, Path(out)))
-    survey = demo_survey(censored=project["inputs.below_detection"])
+    survey = read_project_survey(project)  # the bundled files, with the project's units
     truth = simulate_survey(rng=DEFAULT_SEED)
     inputs = {name.split(".")[0]: DEMO_DIR / name
               for name in ("community.csv", "environment.csv", "locations.gpkg")}

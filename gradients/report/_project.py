@@ -43,7 +43,7 @@ UNMATCHED = ("error", "keep-shared")
 class Key:
     """One key of the project file: its type, default, allowed values and meaning."""
 
-    kind: str  # "str", "path", "int", "bool", "names", "choice", "compositions"
+    kind: str  # "str", "path", "int", "bool", "names", "choice", "compositions", "mapping"
     default: Any = None
     help: str = ""
     choices: tuple[str, ...] = ()
@@ -77,6 +77,9 @@ SCHEMA: dict[str, dict[str, Key]] = {
                                choices=CENSORED),
         "missing": Key("choice", "error", "What to do with empty environmental cells.",
                        choices=MISSING),
+        "sheets": Key("mapping", {}, "Sheet to read from each .xlsx input, as a table "
+                      "`[inputs.sheets]` with lines such as `environment = \"chemistry\"` "
+                      "(keys: community, environment, locations); the first sheet by default."),
         "unmatched_sites": Key("choice", "error", "Sites present in one table but not another: "
                                "stop, or keep only the sites shared by all tables.",
                                choices=UNMATCHED),
@@ -95,6 +98,28 @@ SCHEMA: dict[str, dict[str, Key]] = {
         "factors": Key("names", (), "Categorical variables whose class centroids are placed in "
                        "the ordination."),
         "surfaces": Key("names", (), "Variables drawn as smooth surfaces over the ordination."),
+        "units": Key("mapping", {}, "Unit of environmental columns, as a table "
+                     "`[environment.units]` with lines such as `Cu = \"µg/g\"`; values are "
+                     "converted to the one unit of their quantity (mg/kg, mg/L, µS/cm, ...). A "
+                     "units row under the header of the table does the same."),
+        "quantities": Key("mapping", {}, "Quantity of environmental columns, as a table "
+                          "`[environment.quantities]` with lines such as `Cu = \"mass "
+                          "fraction\"`; by default inferred from the units. Quantities: mass "
+                          "fraction, percent, concentration in water, amount concentration, "
+                          "amount content, conductivity, pH, temperature, length, turbidity."),
+        "renormalise_compositions": Key("bool", False, "Rescale to 100 the samples whose parts "
+                                        "of a composition (the texture) do not sum to 100 "
+                                        "within 1 percentage point, instead of stopping with "
+                                        "an error naming them; listed in the input decisions."),
+        "texture": Key("names", (), "The sand, silt and clay columns, in this order (e.g. "
+                       "[\"sand\", \"silt\", \"clay\"], percentages): the report then gives "
+                       "each site's USDA texture class and the texture triangle."),
+        "screening": Key("path", None, "A screening table (CSV or .xlsx: variable, value, unit, "
+                         "kind, source): the report then gives guideline quotients, their "
+                         "exceedances and a map, and `mean_quotient` becomes a variable that "
+                         "hypotheses may name."),
+        "screening_kind": Key("str", "probable effect", "The kind of screening value the "
+                              "quotients use (a value of the table's `kind` column)."),
     },
     "hypotheses": {},  # free names -> list of variables (checked separately)
     "design": {
@@ -250,6 +275,12 @@ def _check_value(section: str, name: str, key: Key, value: Any, base: Path) -> A
             if len(g) < 2:
                 raise InputError(f"{where}: a composition needs at least two parts; got {list(g)}.")
         return groups
+    if key.kind == "mapping":
+        if not isinstance(value, dict) or not all(
+                isinstance(k, str) and isinstance(v, str) and v.strip() for k, v in value.items()):
+            raise InputError(f"{where} must be a table of column = \"text\" lines, e.g. "
+                             f"[{section}.{name}] then Cu = \"mg/kg\"; got {value!r}.")
+        return dict(value)
     raise AssertionError(key.kind)  # pragma: no cover
 
 
@@ -297,8 +328,14 @@ def project_from_dict(data: dict[str, Any], *, base: Path | None = None,
             elif key.kind == "path" and key.default is not None:
                 settings[full] = (base / key.default).resolve()
             else:
-                settings[full] = key.default
-    for full in ("inputs.community", "inputs.environment", "inputs.locations"):
+                settings[full] = dict(key.default) if key.kind == "mapping" else key.default
+    texture = settings["environment.texture"]
+    if texture and len(texture) != 3:
+        raise InputError("`environment.texture` must name three columns, sand, silt and clay in "
+                         f"this order, e.g. [\"sand\", \"silt\", \"clay\"]; got "
+                         f"{list(texture)}.", columns=list(texture))
+    for full in ("inputs.community", "inputs.environment", "inputs.locations",
+                 "environment.screening"):
         path = settings.get(full)
         if path is not None and not Path(path).is_file():
             raise InputError(
@@ -306,6 +343,12 @@ def project_from_dict(data: dict[str, Any], *, base: Path | None = None,
                 "are read from the folder holding the project file; check the name.",
                 file=str(path),
             )
+    bad_roles = sorted(set(settings["inputs.sheets"]) - {"community", "environment",
+                                                          "locations"})
+    if bad_roles:
+        raise InputError(f"`inputs.sheets` names {format_items(bad_roles)}; its keys are the "
+                         "inputs 'community', 'environment' and 'locations', e.g. "
+                         "[inputs.sheets] then environment = \"chemistry\".")
     coords = settings["inputs.coordinates"]
     if coords and len(coords) != 2:
         raise InputError("`inputs.coordinates` must name two columns, x then y (or longitude "

@@ -25,7 +25,7 @@ from ._writers import OutputFolder, write_csv, write_workbook
 __all__ = ["analyse", "read_project_survey", "run_project", "write_report"]
 
 DEPENDENCIES = ("numpy", "scipy", "pandas", "statsmodels", "matplotlib", "geopandas", "shapely",
-                "pyproj", "pyogrio", "numba", "joblib", "openpyxl")
+                "pyproj", "pyogrio", "numba", "joblib", "openpyxl", "pint")
 
 
 def _version() -> str:
@@ -90,6 +90,7 @@ def _read(read_survey: Any, s: dict[str, Any]) -> Any:
     return read_survey(
         s["inputs.community"], s["inputs.environment"], s["inputs.locations"],
         site_column=s["inputs.site_column"],
+        sheet=dict(s.get("inputs.sheets") or {}) or None,
         coordinates=tuple(s["inputs.coordinates"]) or None,
         crs=s["inputs.crs"],
         factors=list(s["environment.factors"]) or None,
@@ -98,6 +99,8 @@ def _read(read_survey: Any, s: dict[str, Any]) -> Any:
         censored=s["inputs.below_detection"],
         empty_sites=s["inputs.empty_sites"],
         constant=s["inputs.constant"],
+        units=dict(s.get("environment.units") or {}) or None,
+        quantities=dict(s.get("environment.quantities") or {}) or None,
     )
 
 
@@ -141,7 +144,8 @@ def analyse(survey: Any, *, settings: dict[str, Any] | None = None,
                   seed=int(full["permutations.seed"]), n_resamples=int(full["permutations.count"]))
     ctx.results["demo"] = demo
     run_steps(ctx, STEPS)
-    decisions = [str(d) for d in getattr(survey, "log", ())]
+    decisions = [str(d) for d in getattr(ctx.survey, "log", ())]
+    decisions += [str(d) for d in ctx.results.get("input_decisions", [])]
     strata = full["design.strata"]
     groups: dict[str, dict[str, int]] = {}
     env = survey.environment
@@ -255,6 +259,9 @@ def _write_gis(outcome: Outcome, path: Path) -> None:
     frame = pd.DataFrame(index=loc.index)
     if outcome.sites is not None:
         frame = frame.join(outcome.sites)
+    for col in frame.columns:  # texture and exceedance classes: plain text in the layer
+        if isinstance(frame[col].dtype, pd.CategoricalDtype) or frame[col].dtype == object:
+            frame[col] = frame[col].astype(object).where(frame[col].notna(), None)
     frame.columns = [str(c) for c in frame.columns]
     gdf = gpd.GeoDataFrame(frame, geometry=loc.geometry.values, crs=loc.crs)
     gdf.index = pd.Index([str(i) for i in loc.index], name="site")
@@ -285,14 +292,16 @@ def check_hypotheses(project: Project, survey: Any) -> None:
     env = survey.environment
     named = {f"hypotheses.{h}": list(v) for h, v in project.hypotheses.items()}
     for key in ("design.covariables", "environment.log10", "environment.factors",
-                "environment.surfaces"):
+                "environment.surfaces", "environment.texture"):
         named[key] = list(project[key])
+    # columns the report derives before the analyses (see report/steps/soil.py)
+    derived = {"mean_quotient"} if project["environment.screening"] else set()
     named["environment.compositions"] = [p for g in project["environment.compositions"]
                                          for p in g]
     if project["design.strata"]:
         named["design.strata"] = [project["design.strata"]]
     for key, names in named.items():
-        absent = [v for v in names if v not in env.columns]
+        absent = [v for v in names if v not in env.columns and v not in derived]
         if absent:
             from .._errors import format_items
 

@@ -24,6 +24,7 @@ from matplotlib.figure import Figure, SubFigure
 import gradients
 from gradients import plot
 from gradients._errors import InputError
+from gradients.data._demo import DEMO_DIR
 from gradients.plot._kit import made_here
 
 ROOT = Path(__file__).resolve().parents[2]
@@ -53,6 +54,11 @@ def _calls(demo) -> dict[str, Callable[..., object]]:
         "partition": lambda **kw: plot.partition(FRACTIONS, **kw),
         "dendrogram": lambda **kw: plot.dendrogram(demo.clusters, **kw),
         "dispersion": lambda **kw: plot.dispersion(demo.dispersion, **kw),
+        "texture_triangle": lambda **kw: plot.texture_triangle(
+            demo.survey.environment if demo else None, **kw),
+        "quotient_map": lambda **kw: plot.quotient_map(
+            gradients.guideline_quotients(demo.survey, DEMO_DIR / "screening.csv"),
+            demo.survey.locations, **kw),
     }
 
 

@@ -8,7 +8,8 @@ adjustment across hypotheses, correlations among the predictor matrices, and the
 hypothesis (see :mod:`.verdicts`). One module per stage: :mod:`.community` (community,
 environment, geography), :mod:`.ordination` (ordination and fitting), :mod:`.matrix` (the
 Mantel family, regression, correlogram, distance decay), :mod:`.groups` (site classes
-compared) and :mod:`.verdicts`; the demo's planted-truth step lives with the demo
+compared), :mod:`.soil` (units, guideline quotients against a screening table, texture
+classes) and :mod:`.verdicts`; the demo's planted-truth step lives with the demo
 (``gradients.report._demo_truth``, beside the demo code).
 
 :data:`STEPS` is the one list :func:`~gradients.report._pipeline.run_steps` runs: each step
@@ -38,6 +39,7 @@ from .ordination import (
     surfaces_step,
     vectors_step,
 )
+from .soil import screening_step, texture_step, units_step
 from .verdicts import verdicts_step
 
 __all__ = ["SECTION_ORDER", "STEPS", "order_sections"]
@@ -45,8 +47,11 @@ __all__ = ["SECTION_ORDER", "STEPS", "order_sections"]
 #: Every step of a run, in the order it runs.
 STEPS: tuple[Step, ...] = (
     Step("community", community_step, required=True),
+    Step("units", units_step),
+    Step("screening", screening_step, required=True),  # before environment: mean_quotient
     Step("environment", environment_step, required=True),
     Step("geography", geography_step, required=True),
+    Step("texture", texture_step, required=True),
     Step("ordination", ordination_step, required=True),
     Step("vectors", vectors_step, "analyses.vectors"),
     Step("factors", factors_step, "analyses.factors"),
@@ -65,7 +70,7 @@ STEPS: tuple[Step, ...] = (
 #: Order of the sections in the report (steps run in dependency order, which differs).
 SECTION_ORDER = ("verdicts", "planted_truth", "ordination", "vectors", "surfaces", "factors",
                  "groups", "mantel", "partial_mantel", "regression", "correlogram",
-                 "distance_decay")
+                 "distance_decay", "texture", "screening")
 
 
 def order_sections(sections: list[Section]) -> list[Section]:
