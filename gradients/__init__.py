@@ -6,17 +6,18 @@ command line start fast even though the stages pull in geopandas, statsmodels an
 Stages, one subpackage each, in the order data flows through them; each imports only from the
 stages before it, and the analysis stages in braces never import each other::
 
-    data -> distance -> ordination -> permutation -> {fitting, matrix, partition} -> ranking
+    data -> distance -> ordination -> permutation -> {fitting, matrix, partition, groups}
          -> plot -> report
 
 ``data`` reads and checks the survey; ``distance`` builds dissimilarities and distances;
 ``ordination`` gives site scores (PCoA, NMDS, PCA); ``permutation`` is the one engine behind
 every permutation test; ``fitting`` puts environmental variables onto ordination space;
 ``matrix`` holds the Mantel family; ``partition`` separates space from environment on the raw
-data (dbRDA, forward selection, spatial eigenvectors, variation partitioning); ``ranking``
-weighs the variables against each other (best subsets, turnover models, one ranking table);
-``plot`` draws figures from result objects; ``report`` runs a project and writes its folder.
-``gradients.cli`` parses the command line and calls ``report``.
+data (dbRDA, forward selection, spatial eigenvectors, variation partitioning); ``groups``
+compares site classes (PERMANOVA, dispersions, ANOSIM, MRPP, indicator taxa, site clustering);
+``ranking`` weighs the variables against each other (best subsets, turnover models, one ranking
+table); ``plot`` draws figures from result objects; ``report`` runs a project and writes its
+folder. ``gradients.cli`` parses the command line and calls ``report``.
 """
 
 from __future__ import annotations
@@ -82,6 +83,19 @@ _EXPORTS: dict[str, str] = {
     "subset_search": "ranking",
     "turnover_model": "ranking",
     "rank_variables": "ranking",
+    # groups
+    "permanova": "groups",
+    "dispersion_test": "groups",
+    "anosim": "groups",
+    "mrpp": "groups",
+    "PermanovaResult": "groups",
+    "DispersionResult": "groups",
+    "AnosimResult": "groups",
+    "MrppResult": "groups",
+    "indicator_taxa": "groups",
+    "IndicatorTaxaResult": "groups",
+    "cluster_sites": "groups",
+    "SiteClustersResult": "groups",
     # report
     "load_project": "report",
     "init_project": "report",

@@ -44,6 +44,10 @@ REACHES = ("Fennick Brook", "Ashlow Water", "Corvanne floodplain")
 HABITATS = ("margin", "pool", "riffle")
 #: P(margin), P(pool), P(riffle) on the tributaries and on the floodplain.
 _HABITAT_P = {"tributary": (0.2, 0.3, 0.5), "floodplain": (0.5, 0.4, 0.1)}
+#: Bank land-use zones, planted in stretches along every reach.
+ZONES = ("moorland", "plantation", "pasture")
+#: Standard deviation of each taxon's log-abundance shift per zone (a moderate effect).
+ZONE_SD = 0.5
 CENSOR_LIMIT_CD = 0.2
 SPATIAL_RANGE_KM = 3.0
 NB_SIZE = 1.5
@@ -113,11 +117,11 @@ class DemoScenario:
         Per site: local coordinates (km), reach, valley position (0 at the sources, 1 at the
         foot of the floodplain), distance to the Tellmark works (km), the contamination
         gradient (0-1), the fine fraction (silt + clay, 0-1), the two spatial fields the
-        community responds to, the habitat and the uncensored cadmium value.
+        community responds to, the habitat, the uncensored cadmium value and the zone.
     taxon_truth : DataFrame
         Per taxon: optimum and tolerance on the contamination gradient and on the fine
-        fraction, maximum expected count, spatial loadings, habitat effects, and whether the
-        taxon was made rare.
+        fraction, maximum expected count, spatial loadings, habitat effects, whether the
+        taxon was made rare, and the zone effects (``effect_zone_<zone>``).
     seed : int or None
         The int seed that makes this scenario again (``simulate_survey(n_sites, n_taxa,
         rng=seed)``): the int given as `rng`, or for ``rng=None`` the seed drawn from the
@@ -187,6 +191,39 @@ def _spatial_fields(rng: np.random.Generator, x: np.ndarray, y: np.ndarray, k: i
     return chol @ rng.standard_normal((len(x), k))
 
 
+# -- zones: drawn after every other draw of the survey ------------------------------------------
+def _plant_zones(rng: np.random.Generator, reach: np.ndarray, valley: np.ndarray,
+                 counts: np.ndarray, lam: np.ndarray, mu: np.ndarray
+                 ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Bank land-use zones and their effect on the counts, drawn after all other draws.
+
+    Each reach is cut into three stretches at two break points (the first a quarter to 40 %
+    of the way down the reach, the second 60 to 75 %), and the three zones are given to its
+    stretches in a random order, so every reach holds every zone. Each taxon's expected count
+    is multiplied by ``exp(e)`` in each zone, ``e ~ N(0, ZONE_SD)`` per taxon and zone. The
+    counts already drawn are Poisson given their gamma means ``lam``; multiplying by a factor
+    ``f`` below 1 is binomial thinning with probability ``f``, above 1 adding Poisson counts of
+    mean ``(f - 1) lam``: either way the new counts are Poisson with mean ``f lam`` and so
+    negative binomial with mean ``f mu`` and the same size, as if drawn with the zone effect in
+    the first place. Returns the zone of every site, the effects (zones x taxa), the new counts
+    and the new expected counts.
+    """
+    n, k = counts.shape
+    zone_code = np.empty(n, dtype=np.intp)
+    for name in REACHES:
+        members = np.flatnonzero(reach == name)
+        lo, hi = valley[members].min(), valley[members].max()
+        t = (valley[members] - lo) / max(hi - lo, 1e-12)  # 0..1 down this reach
+        breaks = np.array([rng.uniform(0.25, 0.4), rng.uniform(0.6, 0.75)])
+        order = np.argsort(rng.random(len(ZONES)))
+        zone_code[members] = order[np.searchsorted(breaks, t, side="right")]
+    effect = rng.normal(0.0, ZONE_SD, size=(len(ZONES), k))
+    factor = np.exp(effect[zone_code, :])
+    kept = rng.binomial(counts, np.minimum(factor, 1.0))
+    extra = rng.poisson(lam * np.maximum(factor - 1.0, 0.0))
+    return zone_code, effect, (kept + extra).astype(np.int64), mu * factor
+
+
 def simulate_survey(
     n_sites: int = 60,
     n_taxa: int = 40,
@@ -250,12 +287,20 @@ def simulate_survey(
     - Space: two Gaussian random fields with exponential covariance (range 3 km) enter every
       taxon with loadings N(0, 0.4) (a **weak** spatial structure); two more add spatially
       autocorrelated noise to texture, pH and organic matter.
+    - Zones ("moorland", "plantation", "pasture": the land use on the banks), drawn after
+      everything else so that the environmental and location values above do not depend on
+      them: each reach is cut into three stretches (breaks a quarter to 40 % and 60 to 75 %
+      of the way down it) and its stretches get the three zones in a random order, so every
+      reach holds every zone. A **moderate** effect of their own: each taxon's log-abundance
+      shifted by N(0, 0.5) per zone, applied to the counts already drawn by binomial thinning
+      or added Poisson counts, which gives exactly the negative binomial counts of the shifted
+      means. The zone is the last column of the environmental table.
 
     **Community.** Taxon k has a Gaussian (unimodal) response to contamination (optimum
     uniform in [-0.1, 1.1], tolerance in [0.15, 0.35]: **strong**) and to the fine fraction
     (optimum in [0.25, 0.85], tolerance in [0.12, 0.28]: **moderate**), a maximum expected
-    count log-normal around 12 (the rare taxa: 0.3 to 1.5), and the spatial and habitat terms
-    above. Counts are negative binomial with size 1.5 (gamma-Poisson). A site left with no
+    count log-normal around 12 (the rare taxa: 0.3 to 1.5), and the spatial, habitat and zone
+    terms above. Counts are negative binomial with size 1.5 (gamma-Poisson). A site left with no
     individuals gets one of its most expected taxon, and a taxon never drawn gets one at its
     most favourable site, so the tables pass validation; both are rare and deterministic.
 
@@ -269,13 +314,15 @@ def simulate_survey(
     (it draws nothing), so it changes no table.
 
     **How strong.** On the expected community (Hellinger-transformed expected counts), a
-    quadratic in the contamination gradient explains R^2 = 0.54, a quadratic in the fine
-    fraction 0.42, the two spatial fields 0.25, habitat 0.16 (the last two partly through their
-    correlation with the gradients); pH 0.02 and organic matter 0.02 (noise); conductivity 0.33
-    and log Cu 0.34 (through their correlation with texture and contamination). Contamination and
+    quadratic in the contamination gradient explains R^2 = 0.48, a quadratic in the fine
+    fraction 0.39, the two spatial fields 0.24, habitat 0.14, zone 0.15 (the last three partly
+    through their correlation with the gradients); pH 0.02 and organic matter 0.01 (noise);
+    conductivity 0.32 and log Cu 0.31 (through their correlation with texture and
+    contamination). Contamination and
     fine fraction correlate at r = -0.46 across sites (default seed).
 
-    Only ``Generator`` methods (uniform, normal, standard_normal, gamma, poisson, random) and
+    Only ``Generator`` methods (uniform, normal, standard_normal, gamma, poisson, random,
+    binomial) and
     a Cholesky factor are used, so the result depends only on the seed and numpy's PCG64
     streams: ``rng=s`` and ``rng=numpy.random.default_rng(s)`` give the same survey.
 
@@ -355,6 +402,11 @@ def simulate_survey(
     mu = np.exp(log_mu)
     lam = rng.gamma(NB_SIZE, mu / NB_SIZE)
     counts = rng.poisson(lam).astype(np.int64)
+    # -- zones (drawn after every other draw, so the environment and locations keep their
+    #    values whatever is planted here) ------------------------------------------------------
+    zone_code, zone_effect, counts, mu = _plant_zones(rng, reach, valley, counts, lam, mu)
+    zone = np.array(ZONES, dtype=object)[zone_code]
+    # -- end of zones --------------------------------------------------------------------------
     for i in np.flatnonzero(counts.sum(axis=1) == 0):
         counts[i, int(np.argmax(mu[i]))] = 1
     for j in np.flatnonzero(counts.sum(axis=0) == 0):
@@ -379,6 +431,7 @@ def simulate_survey(
         "organic_matter": [f"{v:.2f}" for v in organic],
         "conductivity": [f"{v:.0f}" for v in conductivity],
         "habitat": list(habitat),
+        "zone": list(zone),
     }, dtype=object)
 
     import geopandas as gpd
@@ -392,7 +445,7 @@ def simulate_survey(
         "x_km": x, "y_km": y, "reach": list(reach), "valley_position": valley,
         "distance_to_works_km": distance, "contamination": contamination, "fines": fines,
         "spatial_1": fields[:, 0], "spatial_2": fields[:, 1], "habitat": list(habitat),
-        "Cd_uncensored": cd,
+        "Cd_uncensored": cd, "zone": list(zone),
     }, index=index.copy())
     rare = np.zeros(k, dtype=bool)
     rare[k - n_rare:] = True
@@ -402,6 +455,7 @@ def simulate_survey(
         "loading_spatial_1": loadings[0], "loading_spatial_2": loadings[1],
         **{f"effect_{h}": habitat_effect[i] for i, h in enumerate(HABITATS)},
         "rare": rare,
+        **{f"effect_zone_{z}": zone_effect[i] for i, z in enumerate(ZONES)},
     }, index=pd.Index(taxa, name="taxon", dtype=object))
     from ._demo_network import stream_network
 

@@ -19,6 +19,7 @@ import pandas as pd
 
 from .._errors import InputError, format_items
 from .._validation import align_strata, check_choice, check_n_resamples, seed_sequence
+from ._relabel import count_relabellings, enumerate_relabellings, group_codes
 from ._shuffle import shuffle_segments
 
 __all__ = [
@@ -30,7 +31,7 @@ __all__ = [
     "site_ranks",
 ]
 
-SCHEMES = ("free", "strata", "cyclic", "toroidal", "blocks")
+SCHEMES = ("free", "strata", "cyclic", "toroidal", "blocks", "relabel")
 
 #: Batches are fixed by the plan, never by the number of workers.
 DEFAULT_BATCH = 1000
@@ -163,8 +164,15 @@ def _draw_blocks(plan: PermutationPlan, seed: np.random.SeedSequence, k: int) ->
     return out
 
 
+def _draw_relabel(plan: PermutationPlan, seed: np.random.SeedSequence, k: int) -> np.ndarray:
+    # Uniform random orders (within strata when there are strata) give every relabelling the
+    # same chance, so random draws need nothing of the groups.
+    return (_draw_strata if len(plan._groups) > 1 else _draw_free)(plan, seed, k)
+
+
 _DRAWERS: dict[str, Callable[[PermutationPlan, np.random.SeedSequence, int], np.ndarray]] = {
     "free": _draw_free,
+    "relabel": _draw_relabel,
     "strata": _draw_strata,
     "cyclic": _draw_cyclic,
     "toroidal": _draw_toroidal,
@@ -298,6 +306,8 @@ def permutation_plan(
     exact: bool | None = None,
     batch_size: int | None = None,
     site_labels: Sequence[object] | np.ndarray | pd.Index | None = None,
+    groups: Sequence[object] | np.ndarray | pd.Series | None = None,
+    interchangeable: bool = False,
 ) -> PermutationPlan:
     """Plan the rearrangements of sites that make up a permutation null distribution.
 
@@ -305,15 +315,19 @@ def permutation_plan(
     ----------
     n_sites : int
         Number of sites (the length of every order).
-    scheme : {'free', 'strata', 'cyclic', 'toroidal', 'blocks'}
+    scheme : {'free', 'strata', 'cyclic', 'toroidal', 'blocks', 'relabel'}
         'free': any order of all sites. 'strata': sites exchanged only within their stratum
         (``strata``), e.g. within sampling campaigns or catchments. 'cyclic': the sites, taken in
         the order given (along a transect or a time series), shifted cyclically, within each
         stratum if ``strata`` is given. 'toroidal': sites on a regular grid of ``shape``
         (rows, columns), given in row-major order, shifted on the torus. 'blocks': whole blocks
         of equal size (``blocks``) exchanged, sites keeping their position within the block
-        [2]_. Passing ``strata`` with ``scheme='free'`` selects 'strata'.
-    strata, blocks : sequence, length n_sites
+        [2]_. 'relabel': the sites reassigned among the groups of ``groups`` (within strata
+        when ``strata`` is given), for statistics that depend on the data only through which
+        sites share a group: random orders are drawn as for 'free' (or 'strata'), and an exact
+        test enumerates each distinct assignment once (see Notes). Passing ``strata`` with
+        ``scheme='free'`` selects 'strata'; passing ``groups`` selects 'relabel'.
+    strata, blocks, groups : sequence, length n_sites
         Group label of every site, in site order.
     shape : (int, int)
         Grid shape for 'toroidal'; ``rows * cols`` must equal ``n_sites``.
@@ -336,6 +350,10 @@ def permutation_plan(
         back to the given order, so a given ``rng`` yields the same null distribution, and the
         same p-value, however the rows of the input tables were sorted. 'cyclic', 'toroidal'
         and 'blocks' designs are defined by the site order itself and do not use them.
+    interchangeable : bool, default False
+        For 'relabel' without strata: the statistic does not depend on the names of the groups
+        either (a one-way pseudo-F, ANOSIM's R, MRPP's delta), so assignments that differ only
+        by swapping groups of equal size are listed once.
 
     Returns
     -------
@@ -347,6 +365,13 @@ def permutation_plan(
     ``rng`` [1]_, so a given ``rng`` always yields the same rearrangements. Random
     rearrangements are drawn with replacement and may include the identity; the p-value
     ``(b + 1) / (P + 1)`` is valid for this sampling [3]_.
+
+    A 'relabel' plan has ``n! / (n_1! ... n_g!)`` distinct rearrangements (the product over
+    strata of such counts with strata): 70 for two groups of 4 sites, not ``8! = 40,320``
+    orders. With ``interchangeable``, assignments that differ only by swapping equal-sized
+    groups give the same statistic; every such set has the same size (the product of
+    ``m_s!`` over the sizes ``s`` shared by ``m_s`` groups), so one representative of each
+    gives the same exact p-value: 35 for two groups of 4.
 
     References
     ----------
@@ -365,13 +390,18 @@ def permutation_plan(
     if not isinstance(n_sites, numbers.Integral) or isinstance(n_sites, bool) or n_sites < 2:
         raise InputError(f"`n_sites` must be an integer of at least 2; got {n_sites!r}.")
     n = int(n_sites)
+    if scheme == "free" and groups is not None:
+        scheme = "relabel"
     if scheme == "free" and strata is not None:
         scheme = "strata"
     check_choice("scheme", scheme, SCHEMES)
     n_resamples = check_n_resamples(n_resamples)
-    groups: tuple[np.ndarray, ...] = ()
+    codes = np.zeros(n, dtype=np.intp)
     grid: tuple[int, int] | None = None
-    if scheme != "strata" and strata is not None and scheme not in ("cyclic",):
+    if groups is not None and scheme != "relabel":
+        raise InputError(f"`groups` does not apply to scheme={scheme!r}; use scheme='relabel'.")
+    group_labels, groups = groups, ()  # from here on, `groups` are the segments to shuffle
+    if scheme != "strata" and strata is not None and scheme not in ("cyclic", "relabel"):
         raise InputError(f"`strata` does not apply to scheme={scheme!r}.")
     strata = align_strata(strata, n, name="strata")  # positional: one label per site, in order
     if scheme == "strata":
@@ -381,6 +411,11 @@ def permutation_plan(
     elif scheme == "cyclic":
         groups = (_groups_from_labels(strata) if strata is not None
                   else (np.arange(n, dtype=np.intp),))
+    elif scheme == "relabel":
+        if group_labels is None:
+            raise InputError("scheme='relabel' needs `groups`, one group label per site.")
+        codes = group_codes(align_strata(group_labels, n, name="groups"))  # type: ignore[arg-type]
+        groups = _groups_from_labels(strata) if strata is not None else ()
     elif scheme == "toroidal":
         if shape is None or len(shape) != 2 or int(shape[0]) * int(shape[1]) != n:
             raise InputError(f"scheme='toroidal' needs `shape=(rows, cols)` with rows x cols = "
@@ -396,13 +431,20 @@ def permutation_plan(
                              f"number of sites; sizes found: {sorted(sizes)}. Use "
                              "scheme='strata' to permute within blocks instead.")
 
-    n_distinct = _count_distinct(scheme, n, groups, grid, cap=max(n_resamples, 1))
+    swap = bool(interchangeable) and strata is None
+    if scheme == "relabel":
+        n_distinct = count_relabellings(codes, groups, swap, cap=max(n_resamples, 1))
+    else:
+        n_distinct = _count_distinct(scheme, n, groups, grid, cap=max(n_resamples, 1))
     countable = n_distinct <= n_resamples
     if exact is None:
         exact = countable
     elif exact and not countable:
         raise InputError(f"An exact test would need more than {n_resamples} rearrangements "
                          f"under scheme={scheme!r}; raise `n_resamples` or leave `exact` unset.")
+    if n_distinct == 1 and scheme == "relabel":
+        raise InputError(f"Reassigning these {n} sites among their groups changes nothing (one "
+                         "group, or one group per stratum): there is nothing to test.")
     if n_distinct == 1:
         raise InputError(f"Scheme {scheme!r} allows no rearrangement of these {n} sites "
                          "(every stratum or block has one member): there is nothing to test.")
@@ -422,9 +464,17 @@ def permutation_plan(
             dup = labels[labels.duplicated()].unique()
             raise InputError(f"`site_labels` repeats {format_items(list(dup))}: every site "
                              "needs a label of its own.")
-    if site_labels is not None and scheme in ("free", "strata") and not exact:
-        groups = _canonical_groups(scheme, n, groups, site_labels, strata)
-    enumerated = _enumerate(scheme, n, groups, grid) if exact else None
+    description = (_describe_relabel(codes, groups, swap) if scheme == "relabel"
+                   else _describe(scheme, n, groups, grid))
+    if site_labels is not None and scheme in ("free", "strata", "relabel") and not exact:
+        kind = scheme if scheme != "relabel" else ("strata" if strata is not None else "free")
+        groups = _canonical_groups(kind, n, groups, site_labels, strata)
+    if not exact:
+        enumerated = None
+    elif scheme == "relabel":
+        enumerated = enumerate_relabellings(codes, groups, swap)
+    else:
+        enumerated = _enumerate(scheme, n, groups, grid)
     size = len(enumerated) if enumerated is not None else n_resamples
     return PermutationPlan(
         n_sites=n,
@@ -437,7 +487,7 @@ def permutation_plan(
         _groups=groups,
         _shape=grid,
         _enumerated=enumerated,
-        description=_describe(scheme, n, groups, grid),
+        description=description,
     )
 
 
@@ -453,6 +503,13 @@ def _describe(scheme: str, n: int, groups: tuple[np.ndarray, ...],
     if scheme == "toroidal":
         return f"toroidal shifts on a {grid[0]} x {grid[1]} grid"  # type: ignore[index]
     return f"exchange of {len(groups)} whole blocks of {groups[0].size} sites"
+
+
+def _describe_relabel(codes: np.ndarray, strata: tuple[np.ndarray, ...], swap: bool) -> str:
+    n_groups = int(codes.max()) + 1
+    where = f" within {len(strata)} strata" if strata else ""
+    same = ", equal-sized groups interchangeable" if swap else ""
+    return f"reassignment of {codes.size} sites among {n_groups} groups{where}{same}"
 
 
 def custom_plan(

@@ -12,6 +12,8 @@ draws its figures with these same functions.
   :func:`surface` (a fitted surface as contours); :func:`shepard` (the Shepard diagram of an
   NMDS).
 - Matrix tests: :func:`correlogram` (Mantel correlogram), :func:`distance_decay`.
+- Group contrasts: :func:`dendrogram` (the tree of a site clustering), :func:`dispersion`
+  (distances to class centroids behind a dispersion test).
 - Hypotheses: :func:`hypotheses`.
 - Ranking: :func:`ranking` (variables ranked against turnover), :func:`turnover_curves` (the
   fitted turnover functions, steepest stretch marked).
@@ -26,6 +28,7 @@ opens a window and no global matplotlib state changes.
 """
 
 from ._biplot import biplot
+from ._groups import dendrogram, dispersion
 from ._hypotheses import hypotheses
 from ._matrix import correlogram, distance_decay
 from ._ordination import arrows, centroids, legend, sites, taxa
@@ -40,6 +43,8 @@ __all__ = [
     "biplot",
     "centroids",
     "correlogram",
+    "dendrogram",
+    "dispersion",
     "distance_decay",
     "house_style",
     "hypotheses",

@@ -57,7 +57,7 @@ dissimilarity = "bray-curtis"
 [environment]
 log10 = ["Cu", "Zn", "Pb", "Cd"]      # right-skewed concentrations
 compositions = [["sand", "silt", "clay"]]  # parts that sum to 100 %: isometric log-ratios
-factors = ["habitat"]                 # categorical variables shown as class centroids
+factors = ["habitat", "zone"]         # categorical variables: class centroids, groups
 surfaces = ["Cu", "sand"]             # variables drawn as smooth surfaces on the ordination
 texture = ["sand", "silt", "clay"]    # sand, silt, clay (%): USDA texture classes and triangle
 screening = "{data_folder}/screening.csv"    # screening table: guideline quotients (screening only;
@@ -92,6 +92,14 @@ covariables = []                      # variables controlled for in every test
 method = "network"                    # "auto", "geodesic", "euclidean" or "network"
 network = "{data_folder}/streams.gpkg"        # the river lines (GeoPackage, projected CRS)
 snap_tolerance = 50                   # metres: each site must lie this close to a line
+# Site classes (the factors above) compared: PERMANOVA with a dispersion check, indicator
+# taxa of every class, and a clustering of the sites.
+[groups]
+terms = ["habitat", "zone"]           # design terms in order; "a:b" is an interaction
+top_taxa = 5                          # indicator taxa shown per class
+cluster = true                        # cluster the sites and draw the dendrogram
+clusters = 4                          # number of clusters (default: widest silhouette)
+contiguous = "space"                  # "none", "transect" (site order) or "space"
 
 [analyses]
 ordination = "nmds"                   # "nmds" or "pcoa"

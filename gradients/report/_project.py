@@ -145,6 +145,28 @@ SCHEMA: dict[str, dict[str, Key]] = {
                               "metres, from a site to the nearest line of the network.",
                               minimum=0),
     },
+    "groups": {
+        "terms": Key("names", (), "Terms of the design the site classes are tested with, in "
+                     "order: class variables, and `a:b` for the interaction of two, e.g. "
+                     "[\"zone\", \"period\", \"zone:period\"]. Default: each of "
+                     "`environment.factors` as a main effect."),
+        "sums_of_squares": Key("choice", "sequential", "Sums of squares of the PERMANOVA: "
+                               "'sequential' (each term adjusted for the terms before it) or "
+                               "'marginal' (each term adjusted for all the others).",
+                               choices=("sequential", "marginal")),
+        "top_taxa": Key("int", 5, "Indicator taxa shown per class in the report (all of them "
+                        "are in tables/indicator_taxa.csv).", minimum=1),
+        "cluster": Key("bool", False, "Cluster the sites by their communities and draw the "
+                       "dendrogram."),
+        "cluster_method": Key("choice", "average", "Linkage of the clustering; 'ward' needs "
+                              "Euclidean dissimilarities (e.g. hellinger).",
+                              choices=("average", "complete", "ward")),
+        "clusters": Key("int", None, "Number of clusters of the cut; by default the number "
+                        "from 2 to 10 with the widest mean silhouette.", minimum=2),
+        "contiguous": Key("choice", "none", "Keep clusters contiguous: 'transect' (neighbours "
+                          "in the order of the sites) or 'space' (neighbours from the site "
+                          "locations).", choices=("none", "transect", "space")),
+    },
     "analyses": {
         "ordination": Key("choice", "nmds", "Ordination of the community dissimilarities.",
                           choices=ORDINATIONS),
@@ -168,6 +190,9 @@ SCHEMA: dict[str, dict[str, Key]] = {
                          "community between the hypotheses' variables and spatial eigenvectors "
                          "(needs locations)."),
         "verdicts": Key("bool", True, "The decision table with one verdict per hypothesis."),
+        "groups": Key("bool", True, "Compare the site classes (`environment.factors`): "
+                      "PERMANOVA with its dispersion check, indicator taxa, and the clustering "
+                      "of `[groups]`."),
         "ranking": Key("bool", True, "Rank the numeric variables against community turnover "
                        "(best subsets, turnover model, one ranking table)."),
     },

@@ -136,12 +136,13 @@ def test_noise_variables_are_not_in_the_community_model(scenario):
 def test_documented_strengths(scenario):
     # the R^2 values quoted in the generator docstring, the demo README and docs/data.md:
     # share of the expected (Hellinger-transformed) community explained by each planted term
-    from gradients.data._demo import HABITATS
+    from gradients.data._demo import HABITATS, ZONES
 
     t, tx = scenario.site_truth, scenario.taxon_truth
     c = t["contamination"].to_numpy()[:, None]
     f = t["fines"].to_numpy()[:, None]
     effects = tx[[f"effect_{h}" for h in HABITATS]].to_numpy().T
+    zone_effects = tx[[f"effect_zone_{z}" for z in ZONES]].to_numpy().T
     log_mu = (np.log(tx["max_expected_count"].to_numpy())
               - (c - tx["optimum_contamination"].to_numpy()) ** 2
               / (2 * tx["tolerance_contamination"].to_numpy() ** 2)
@@ -149,7 +150,8 @@ def test_documented_strengths(scenario):
               / (2 * tx["tolerance_fines"].to_numpy() ** 2)
               + t[["spatial_1", "spatial_2"]].to_numpy()
               @ tx[["loading_spatial_1", "loading_spatial_2"]].to_numpy().T
-              + effects[[HABITATS.index(h) for h in t["habitat"]]])
+              + effects[[HABITATS.index(h) for h in t["habitat"]]]
+              + zone_effects[[ZONES.index(z) for z in t["zone"]]])
     mu = np.exp(log_mu)
     hel = np.sqrt(mu / mu.sum(axis=1, keepdims=True))
     hel -= hel.mean(axis=0)
@@ -166,12 +168,13 @@ def test_documented_strengths(scenario):
         "fines": r2(np.column_stack([fv, fv ** 2])),
         "space": r2(t[["spatial_1", "spatial_2"]].to_numpy()),
         "habitat": r2(pd.get_dummies(t["habitat"]).to_numpy(float)[:, 1:]),
+        "zone": r2(pd.get_dummies(t["zone"]).to_numpy(float)[:, 1:]),
         "pH": r2(env[["pH"]].to_numpy()),
         "organic_matter": r2(env[["organic_matter"]].to_numpy()),
         "conductivity": r2(env[["conductivity"]].to_numpy()),
     }
-    quoted = {"contamination": 0.54, "fines": 0.42, "space": 0.25, "habitat": 0.16, "pH": 0.02,
-              "organic_matter": 0.02, "conductivity": 0.33}
+    quoted = {"contamination": 0.48, "fines": 0.39, "space": 0.24, "habitat": 0.14,
+              "zone": 0.15, "pH": 0.02, "organic_matter": 0.01, "conductivity": 0.32}
     for key, value in quoted.items():
         assert got[key] == pytest.approx(value, abs=0.006), key
 
@@ -206,3 +209,36 @@ def test_bundled_river_network_is_valid_and_carries_every_site(scenario):
     along = sum(a.distance(b) for a, b in zip(fb.iloc[:-1], fb.iloc[1:], strict=True))
     assert river["FB01", "FB20"] == pytest.approx(along, rel=1e-9)
     assert scenario.network.geometry.geom_equals_exact(streams.geometry, tolerance=0).all()
+def test_planted_zones(scenario):
+    # every reach holds every zone, in three contiguous stretches (one zone each) down the reach
+    from gradients.data._demo import ZONES
+
+    truth = scenario.site_truth
+    assert (scenario.environment["zone"].to_numpy() == truth["zone"].to_numpy()).all()
+    for _, part in truth.groupby("reach"):
+        zones = part.sort_values("valley_position")["zone"].tolist()
+        runs = [z for i, z in enumerate(zones) if i == 0 or z != zones[i - 1]]
+        assert sorted(runs) == sorted(ZONES)
+
+
+def test_zone_effect_gives_poisson_counts_of_the_shifted_means():
+    # Theory: binomial thinning of Poisson(lambda) with probability f is Poisson(f lambda), and
+    # adding an independent Poisson((f - 1) lambda) gives Poisson(f lambda) too. With lambda = 4
+    # at every site, the counts of each taxon in each zone must have mean and variance
+    # 4 exp(effect) (within 5 standard errors of the mean; variance within 15 %).
+    from gradients.data._demo import REACHES, _plant_zones
+
+    rng = np.random.default_rng(1)
+    n, k = 3 * 4000, 4
+    reach = np.repeat(np.array(REACHES, dtype=object), n // 3)
+    valley = np.tile(np.linspace(0.0, 1.0, n // 3), 3)
+    lam = np.full((n, k), 4.0)
+    counts = rng.poisson(lam)
+    zone, effect, new, mu = _plant_zones(rng, reach, valley, counts, lam, lam.copy())
+    for z in range(3):
+        rows = new[zone == z]
+        expected = 4.0 * np.exp(effect[z])
+        se = np.sqrt(expected / rows.shape[0])
+        assert np.all(np.abs(rows.mean(axis=0) - expected) < 5 * se)
+        np.testing.assert_allclose(rows.var(axis=0), expected, rtol=0.15)
+        np.testing.assert_allclose(mu[zone == z], np.broadcast_to(expected, rows.shape))

@@ -19,7 +19,7 @@ from gradients.distance import DistanceMatrix
 def demo() -> SimpleNamespace:
     survey = gradients.demo_survey()
     env = survey.environment
-    numeric = env.drop(columns="habitat")
+    numeric = env.drop(columns=["habitat", "zone"])
     d = gradients.dissimilarity(survey.community, "bray-curtis")
     metres = gradients.geographic_distance(survey.locations)
     geo = DistanceMatrix(metres.condensed / 1000.0, metres.labels, metric=metres.metric,
@@ -37,6 +37,8 @@ def demo() -> SimpleNamespace:
         surface=gradients.fit_surface(pcoa, env["Cu"], n_resamples=0),
         taxa=pcoa.taxon_scores(survey.community),
         correlogram=gradients.mantel_correlogram(d, geo, n_resamples=99, rng=1),
+        clusters=gradients.cluster_sites(d, k=3),
+        dispersion=gradients.dispersion_test(d, env["zone"], n_resamples=99, rng=1),
         decay=gradients.distance_decay(d, geo, rng=1),
         parts=gradients.partition_variation(
             d, numeric[["Cu", "Zn"]], numeric[["sand", "clay"]], names=["metals", "texture"],

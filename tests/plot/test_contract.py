@@ -50,6 +50,8 @@ def _calls(demo) -> dict[str, Callable[..., object]]:
         "hypotheses": lambda **kw: plot.hypotheses({"metals": demo.partial}, **kw),
         "ranking": lambda **kw: plot.ranking(RANKING, **kw),
         "partition": lambda **kw: plot.partition(demo.parts, **kw),
+        "dendrogram": lambda **kw: plot.dendrogram(demo.clusters, **kw),
+        "dispersion": lambda **kw: plot.dispersion(demo.dispersion, **kw),
         "texture_triangle": lambda **kw: plot.texture_triangle(
             demo.survey.environment if demo else None, **kw),
         "quotient_map": lambda **kw: plot.quotient_map(
@@ -106,7 +108,8 @@ def test_makes_a_house_style_figure_without_axes(name, demo, no_files):
 
 
 @pytest.mark.parametrize("name", ["biplot", "surface", "shepard", "correlogram",
-                                  "distance_decay", "hypotheses", "ranking", "partition"])
+                                  "distance_decay", "hypotheses", "ranking", "partition",
+                                  "dendrogram", "dispersion"])
 def test_whole_figures_have_a_title_and_honour_figsize(name, demo):
     ax = _calls(demo)[name](figsize=(4.0, 3.0), title="My title")
     assert ax.get_title(loc="left") == "My title"
@@ -168,6 +171,10 @@ def test_results_of_the_wrong_kind_are_named(demo):
     with pytest.raises(InputError, match="`eigenvectors` must be the result of "
                                          "spatial_eigenvectors"):
         plot.spatial_eigenvector_map(demo.parts, demo.survey.locations)
+    with pytest.raises(InputError, match="`result` must be the result of cluster_sites"):
+        plot.dendrogram(demo.pcoa)
+    with pytest.raises(InputError, match="`result` must be the result of dispersion_test"):
+        plot.dispersion(demo.clusters)
 
 
 def test_reachable_from_the_package():

@@ -93,6 +93,10 @@ def test_demo_recovers_the_planted_truth(tmp_path: Path) -> None:
     assert verdicts.loc["water_and_organic", "verdict"] == "not supported"
     truth = pd.read_csv(report / "tables" / "planted_truth.csv", index_col="effect")
     assert truth.loc[["contamination", "texture", "water_and_organic"], "recovered"].all()
+    # the bank zones (a moderate effect of their own, simulate_survey's docstring) are found by
+    # the PERMANOVA of "Site classes compared"
+    assert bool(truth.loc["zone", "recovered"])
+    assert "PERMANOVA pseudo-F" in truth.loc["zone", "found"]
 
 
 def test_same_seed_gives_byte_identical_tables(demo_report: Path, tmp_path: Path,

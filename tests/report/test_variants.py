@@ -33,7 +33,9 @@ def test_pcoa_with_strata_and_covariables(small, tmp_path: Path) -> None:
                       hypotheses={"metals": ("Cu", "Zn"), "texture": ("sand", "clay")})
     keys = [s.key for s in outcome.sections]
     assert keys[:3] == ["verdicts", "ranking", "ordination"]
-    assert "surfaces" not in keys and "factors" not in keys  # habitat is the strata column
+    assert "surfaces" not in keys
+    # habitat is the strata column: of the categorical columns only the bank zone is fitted
+    assert list(outcome.tables["factor_fits"].index) == ["zone"]
     assert "pcoa_axes" in outcome.tables and "nmds_starts" not in outcome.tables
     pm = outcome.tables["partial_mantel"]
     assert pm.loc["metals", "controls"] == "texture, covariables, geography"
@@ -79,7 +81,8 @@ def test_switched_off_analyses_leave_no_trace(small, tmp_path: Path) -> None:
     survey = Survey(community, env, locations, censored="half-limit")
     off = {f"analyses.{k}": False for k in ("vectors", "factors", "surfaces", "mantel",
                                             "partial_mantel", "regression", "correlogram",
-                                            "distance_decay", "partition", "verdicts", "ranking")}
+                                            "distance_decay", "partition", "verdicts", "ranking",
+                                            "groups")}
     outcome = analyse(survey, settings={**off, "permutations.count": 9,
                                         "analyses.starts": 2},
                       hypotheses={"metals": ("Cu",)})

@@ -7,11 +7,11 @@ them into a report: analysis units of the variables (log10, log-ratios, km), the
 adjustment across hypotheses, correlations among the predictor matrices, and the verdict per
 hypothesis (see :mod:`.verdicts`). One module per stage: :mod:`.community` (community,
 environment, geography), :mod:`.ordination` (ordination and fitting), :mod:`.matrix` (the
-Mantel family, regression, correlogram, distance decay), :mod:`.partition` (space and
-environment on the raw data), :mod:`.ranking` (variables ranked against turnover),
-:mod:`.soil` (units, guideline quotients against a screening table, texture classes) and
-:mod:`.verdicts`; the demo's
-planted-truth step lives with the demo (``gradients.report._demo_truth``, beside the demo code).
+Mantel family, regression, correlogram, distance decay), :mod:`.groups` (site classes
+compared), :mod:`.partition` (space and environment on the raw data), :mod:`.ranking`
+(variables ranked against turnover), :mod:`.soil` (units, guideline quotients against a
+screening table, texture classes) and :mod:`.verdicts`; the demo's planted-truth step lives
+with the demo (``gradients.report._demo_truth``, beside the demo code).
 
 :data:`STEPS` is the one list :func:`~gradients.report._pipeline.run_steps` runs: each step
 needs what the steps before it left in the context (the community and environmental distances
@@ -25,6 +25,7 @@ from .._demo_truth import planted_truth_step
 from .._model import Section
 from .._pipeline import Step
 from .community import community_step, environment_step, geography_step
+from .groups import groups_step
 from .matrix import (
     correlogram_step,
     distance_decay_step,
@@ -65,6 +66,7 @@ STEPS: tuple[Step, ...] = (
     Step("distance_decay", distance_decay_step, "analyses.distance_decay"),
     Step("partition", partition_step, "analyses.partition"),
     Step("ranking", ranking_step, "analyses.ranking"),
+    Step("groups", groups_step, "analyses.groups"),
     Step("verdicts", verdicts_step, "analyses.verdicts"),
     Step("planted_truth", planted_truth_step),
     Step("surfaces", surfaces_step, "analyses.surfaces"),
@@ -72,7 +74,8 @@ STEPS: tuple[Step, ...] = (
 
 #: Order of the sections in the report (steps run in dependency order, which differs).
 SECTION_ORDER = ("verdicts", "planted_truth", "ranking", "ordination", "vectors", "surfaces",
-                 "factors", "mantel", "partial_mantel", "regression", "partition", "correlogram",
+                 "factors", "groups", "mantel", "partial_mantel", "regression", "partition",
+                 "correlogram",
                  "distance_decay", "texture", "screening")
 
 

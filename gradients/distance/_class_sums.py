@@ -1,0 +1,130 @@
+"""Sums of a rearranged symmetric matrix over the blocks of a partition of the sites.
+
+The one-way and group statistics of the suite (a one-factor pseudo-F, ANOSIM's within-class
+ranks, MRPP's within-class distances) are traces of a permuted matrix against a block-diagonal
+hat matrix. This kernel evaluates them over the blocks only, for a whole batch of site orders;
+designs with several terms use the general trace kernel in :mod:`gradients.distance._centred`.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from numba import njit, prange
+
+from .._errors import InputError
+from ._centred import _FAST, _OPTIONS, _orders, _square_float
+
+__all__ = ["PermutedClassSums"]
+@njit(parallel=True, fastmath=_FAST, **_OPTIONS)
+def _class_sums(g: np.ndarray, members: np.ndarray, bounds: np.ndarray,
+                orders: np.ndarray) -> np.ndarray:  # pragma: no cover
+    # sum_{i, j in class c} g[o_i, o_j] for every class c and order o: the diagonal plus twice
+    # the upper triangle of each class's block, nothing outside the blocks.
+    k = orders.shape[0]
+    c = bounds.size - 1
+    out = np.empty((k, c))
+    for b in prange(k):
+        o = orders[b]
+        idx = np.empty(members.size, dtype=np.intp)
+        for a in range(members.size):
+            idx[a] = o[members[a]]
+        for cls in range(c):
+            lo = bounds[cls]
+            hi = bounds[cls + 1]
+            # The sum over a block does not depend on the order of its sites: sorted, each
+            # row is read left to right, which the cache prefetches.
+            idx[lo:hi] = np.sort(idx[lo:hi])
+            total = 0.0
+            for a in range(lo, hi):
+                row = g[idx[a]]
+                acc = 0.0
+                for e in range(a + 1, hi):
+                    acc += row[idx[e]]
+                total += 2.0 * acc + row[idx[a]]
+            out[b, cls] = total
+    return out
+
+
+@njit(parallel=True, fastmath=_FAST, **_OPTIONS)
+def _class_rows(g: np.ndarray, members: np.ndarray, bounds: np.ndarray,
+                orders: np.ndarray) -> tuple[np.ndarray, np.ndarray]:  # pragma: no cover
+    # For every slot a of class c: sum_{e in c} g[idx_a, idx_e] and g[idx_a, idx_a], with the
+    # class's rearranged sites idx sorted (slots follow that order, not the sites').
+    k = orders.shape[0]
+    n = members.size
+    c = bounds.size - 1
+    rows = np.zeros((k, n))
+    diag = np.empty((k, n))
+    for b in prange(k):
+        o = orders[b]
+        idx = np.empty(n, dtype=np.intp)
+        for a in range(n):
+            idx[a] = o[members[a]]
+        for cls in range(c):
+            lo = bounds[cls]
+            hi = bounds[cls + 1]
+            idx[lo:hi] = np.sort(idx[lo:hi])
+            for a in range(lo, hi):
+                row = g[idx[a]]
+                acc = 0.0
+                for e in range(a + 1, hi):
+                    x = row[idx[e]]
+                    acc += x
+                    rows[b, e] += x
+                d = row[idx[a]]
+                diag[b, a] = d
+                rows[b, a] += acc + d
+    return rows, diag
+
+
+class PermutedClassSums:
+    """``1_c' M[o][:, o] 1_c`` for every class ``c`` of a fixed partition of the sites.
+
+    The trace of a rearranged symmetric matrix against a block-diagonal hat matrix (one block
+    of ones per class), evaluated only over the blocks: ``sum_c n_c^2 / 2`` reads per order
+    instead of the ``n^2 / 2`` of :class:`PermutedTraces`. For Gower's centred matrix ``G``
+    (rows summing to zero), ``sum_c S_c / n_c`` is the between-class sum of squares
+    ``tr(Q' G_o Q)`` of a one-way design; for ranks or raw dissimilarities with a zero
+    diagonal, ``S_c / 2`` is the sum over the pairs within class ``c`` (ANOSIM, MRPP).
+
+    Parameters
+    ----------
+    m : ndarray (n, n) or GowerMatrix
+        A symmetric matrix.
+    codes : ndarray of int, shape (n,)
+        Class of every site, ``0 .. c - 1``.
+
+    Notes
+    -----
+    Row ``b`` of a batch of orders moves the data of site ``orders[b, i]`` to site ``i``, so
+    ``S_c = sum_{i, j in c} M[o_i, o_j]``. The compiled loop runs its orders on numba's threads
+    and releases the GIL, as :class:`PermutedTraces` does.
+    """
+
+    def __init__(self, m: object, codes: np.ndarray) -> None:
+        self.m = _square_float(m, "m")
+        n = self.m.shape[0]
+        codes = np.asarray(codes)
+        if codes.shape != (n,) or codes.size == 0 or codes.min() < 0:
+            raise InputError(f"`codes` must give a class number 0, 1, ... for each of the {n} "
+                             "sites.")
+        self.n_classes = int(codes.max()) + 1
+        self.members = np.argsort(codes, kind="stable").astype(np.intp)
+        counts = np.bincount(codes, minlength=self.n_classes)
+        self.bounds = np.concatenate([[0], np.cumsum(counts)]).astype(np.intp)
+
+    def __call__(self, orders: np.ndarray) -> np.ndarray:
+        """Class sums for a batch of orders: shape ``(k, n_classes)``."""
+        o = np.ascontiguousarray(_orders(orders, self.m.shape[0]), dtype=np.intp)
+        return _class_sums(self.m, self.members, self.bounds, o)
+
+    def rows(self, orders: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Row sums within the class blocks, and the diagonal, for a batch of orders.
+
+        Returns two arrays of shape ``(k, n)``: for each slot ``a`` (slots grouped by class,
+        ``bounds`` giving each class's range) ``sum_{j in c} M[o_i, o_j]`` and ``M[o_i, o_i]``
+        for one site ``i`` of the class. Within a class the slots do not follow the sites'
+        order, so use them only for statistics that treat a class's sites alike.
+        """
+        o = np.ascontiguousarray(_orders(orders, self.m.shape[0]), dtype=np.intp)
+        return _class_rows(self.m, self.members, self.bounds, o)
