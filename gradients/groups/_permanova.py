@@ -428,7 +428,8 @@ def permanova(
     # Work on the sites sorted by label, so that every plan (whole units included) and hence
     # every p-value is the same however the rows of the inputs were ordered.
     order = np.argsort(site_ranks(given))
-    dm = dm.subset(given[order])
+    if not np.array_equal(order, np.arange(order.size)):
+        dm = dm.subset(given[order])
     if strata_values is not None:
         strata_values = strata_values[order]
     des, notes = read_design(design, dm.labels, terms)
