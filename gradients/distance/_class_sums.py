@@ -38,12 +38,11 @@ def _sorted_blocks(o: np.ndarray, codes: np.ndarray,
 
 
 @njit(parallel=True, fastmath=_FAST, **_OPTIONS)
-def _class_sums(g: np.ndarray, codes: np.ndarray, bounds: np.ndarray,
+def _class_sums(g: np.ndarray, codes: np.ndarray, bounds: np.ndarray, c: int,
                 orders: np.ndarray) -> np.ndarray:  # pragma: no cover
-    # sum_{i, j in class c} g[o_i, o_j] for every class c and order o: the diagonal plus twice
-    # the upper triangle of each class's block, nothing outside the blocks.
+    # sum_{i, j in class c} g[o_i, o_j] for the first c classes and every order o: the diagonal
+    # plus twice the upper triangle of each class's block, nothing outside the blocks.
     k = orders.shape[0]
-    c = bounds.size - 1
     out = np.empty((k, c))
     for b in prange(k):
         idx = _sorted_blocks(orders[b], codes, bounds)
@@ -105,6 +104,9 @@ class PermutedClassSums:
         A symmetric matrix.
     codes : ndarray of int, shape (n,)
         Class of every site, ``0 .. c - 1``.
+    first : int, optional
+        Sum over the first ``first`` classes only (all by default). With two classes and a
+        matrix whose rows sum to zero, ``S_0 = S_1``: one block is enough.
 
     Notes
     -----
@@ -113,7 +115,7 @@ class PermutedClassSums:
     and releases the GIL, as :class:`PermutedTraces` does.
     """
 
-    def __init__(self, m: object, codes: np.ndarray) -> None:
+    def __init__(self, m: object, codes: np.ndarray, *, first: int | None = None) -> None:
         self.m = _square_float(m, "m")
         n = self.m.shape[0]
         codes = np.asarray(codes)
@@ -122,13 +124,16 @@ class PermutedClassSums:
                              "sites.")
         self.n_classes = int(codes.max()) + 1
         self.codes = np.ascontiguousarray(codes, dtype=np.intp)
+        self.first = self.n_classes if first is None else int(first)
+        if not 1 <= self.first <= self.n_classes:
+            raise InputError(f"`first` must be between 1 and {self.n_classes}; got {first!r}.")
         counts = np.bincount(codes, minlength=self.n_classes)
         self.bounds = np.concatenate([[0], np.cumsum(counts)]).astype(np.intp)
 
     def __call__(self, orders: np.ndarray) -> np.ndarray:
-        """Class sums for a batch of orders: shape ``(k, n_classes)``."""
+        """Class sums for a batch of orders: shape ``(k, first)``."""
         o = np.ascontiguousarray(_orders(orders, self.m.shape[0]), dtype=np.intp)
-        return _class_sums(self.m, self.codes, self.bounds, o)
+        return _class_sums(self.m, self.codes, self.bounds, self.first, o)
 
     def rows(self, orders: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Row sums within the class blocks, and the diagonal, for a batch of orders.
