@@ -15,25 +15,40 @@ from .._errors import InputError
 from ._centred import _FAST, _OPTIONS, _orders, _square_float
 
 __all__ = ["PermutedClassSums"]
+
+
+@njit(inline="always")
+def _sorted_blocks(o: np.ndarray, codes: np.ndarray,
+                   bounds: np.ndarray) -> np.ndarray:  # pragma: no cover
+    # The rows of g each class reads under the order o (site i reads row o_i), grouped by
+    # class, ascending within each class. A block's sum does not depend on the order of its
+    # sites; sorted, each row is read left to right, which the cache prefetches. One pass
+    # over the positions (a bucket sort) instead of sorting every block.
+    n = o.size
+    label = np.empty(n, dtype=np.intp)
+    for i in range(n):
+        label[o[i]] = codes[i]
+    idx = np.empty(n, dtype=np.intp)
+    fill = bounds[:-1].copy()
+    for p in range(n):
+        cls = label[p]
+        idx[fill[cls]] = p
+        fill[cls] += 1
+    return idx
+
+
 @njit(parallel=True, fastmath=_FAST, **_OPTIONS)
-def _class_sums(g: np.ndarray, members: np.ndarray, bounds: np.ndarray,
+def _class_sums(g: np.ndarray, codes: np.ndarray, bounds: np.ndarray, c: int,
                 orders: np.ndarray) -> np.ndarray:  # pragma: no cover
-    # sum_{i, j in class c} g[o_i, o_j] for every class c and order o: the diagonal plus twice
-    # the upper triangle of each class's block, nothing outside the blocks.
+    # sum_{i, j in class c} g[o_i, o_j] for the first c classes and every order o: the diagonal
+    # plus twice the upper triangle of each class's block, nothing outside the blocks.
     k = orders.shape[0]
-    c = bounds.size - 1
     out = np.empty((k, c))
     for b in prange(k):
-        o = orders[b]
-        idx = np.empty(members.size, dtype=np.intp)
-        for a in range(members.size):
-            idx[a] = o[members[a]]
+        idx = _sorted_blocks(orders[b], codes, bounds)
         for cls in range(c):
             lo = bounds[cls]
             hi = bounds[cls + 1]
-            # The sum over a block does not depend on the order of its sites: sorted, each
-            # row is read left to right, which the cache prefetches.
-            idx[lo:hi] = np.sort(idx[lo:hi])
             total = 0.0
             for a in range(lo, hi):
                 row = g[idx[a]]
@@ -46,24 +61,20 @@ def _class_sums(g: np.ndarray, members: np.ndarray, bounds: np.ndarray,
 
 
 @njit(parallel=True, fastmath=_FAST, **_OPTIONS)
-def _class_rows(g: np.ndarray, members: np.ndarray, bounds: np.ndarray,
+def _class_rows(g: np.ndarray, codes: np.ndarray, bounds: np.ndarray,
                 orders: np.ndarray) -> tuple[np.ndarray, np.ndarray]:  # pragma: no cover
     # For every slot a of class c: sum_{e in c} g[idx_a, idx_e] and g[idx_a, idx_a], with the
     # class's rearranged sites idx sorted (slots follow that order, not the sites').
     k = orders.shape[0]
-    n = members.size
+    n = codes.size
     c = bounds.size - 1
     rows = np.zeros((k, n))
     diag = np.empty((k, n))
     for b in prange(k):
-        o = orders[b]
-        idx = np.empty(n, dtype=np.intp)
-        for a in range(n):
-            idx[a] = o[members[a]]
+        idx = _sorted_blocks(orders[b], codes, bounds)
         for cls in range(c):
             lo = bounds[cls]
             hi = bounds[cls + 1]
-            idx[lo:hi] = np.sort(idx[lo:hi])
             for a in range(lo, hi):
                 row = g[idx[a]]
                 acc = 0.0
@@ -93,6 +104,9 @@ class PermutedClassSums:
         A symmetric matrix.
     codes : ndarray of int, shape (n,)
         Class of every site, ``0 .. c - 1``.
+    first : int, optional
+        Sum over the first ``first`` classes only (all by default). With two classes and a
+        matrix whose rows sum to zero, ``S_0 = S_1``: one block is enough.
 
     Notes
     -----
@@ -101,7 +115,7 @@ class PermutedClassSums:
     and releases the GIL, as :class:`PermutedTraces` does.
     """
 
-    def __init__(self, m: object, codes: np.ndarray) -> None:
+    def __init__(self, m: object, codes: np.ndarray, *, first: int | None = None) -> None:
         self.m = _square_float(m, "m")
         n = self.m.shape[0]
         codes = np.asarray(codes)
@@ -109,14 +123,17 @@ class PermutedClassSums:
             raise InputError(f"`codes` must give a class number 0, 1, ... for each of the {n} "
                              "sites.")
         self.n_classes = int(codes.max()) + 1
-        self.members = np.argsort(codes, kind="stable").astype(np.intp)
+        self.codes = np.ascontiguousarray(codes, dtype=np.intp)
+        self.first = self.n_classes if first is None else int(first)
+        if not 1 <= self.first <= self.n_classes:
+            raise InputError(f"`first` must be between 1 and {self.n_classes}; got {first!r}.")
         counts = np.bincount(codes, minlength=self.n_classes)
         self.bounds = np.concatenate([[0], np.cumsum(counts)]).astype(np.intp)
 
     def __call__(self, orders: np.ndarray) -> np.ndarray:
-        """Class sums for a batch of orders: shape ``(k, n_classes)``."""
+        """Class sums for a batch of orders: shape ``(k, first)``."""
         o = np.ascontiguousarray(_orders(orders, self.m.shape[0]), dtype=np.intp)
-        return _class_sums(self.m, self.members, self.bounds, o)
+        return _class_sums(self.m, self.codes, self.bounds, self.first, o)
 
     def rows(self, orders: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Row sums within the class blocks, and the diagonal, for a batch of orders.
@@ -127,4 +144,4 @@ class PermutedClassSums:
         order, so use them only for statistics that treat a class's sites alike.
         """
         o = np.ascontiguousarray(_orders(orders, self.m.shape[0]), dtype=np.intp)
-        return _class_rows(self.m, self.members, self.bounds, o)
+        return _class_rows(self.m, self.codes, self.bounds, o)

@@ -32,11 +32,15 @@ def pair_test(dm: DistanceMatrix, codes: np.ndarray, strata: np.ndarray | None, 
     total = gm.total
     ss = float(q[:, 0] @ g @ q[:, 0])
     stat = ss / ((total - ss) / (m - 2))
-    kernel = PermutedClassSums(g, codes)
+    # tr(Q' G_o Q) = S_0 / n_0 + S_1 / n_1, and S_0 = S_1 since the rows of G sum to zero:
+    # the smaller class's block alone gives it
     sizes = np.bincount(codes, minlength=2).astype(np.float64)
+    small = int(np.argmin(sizes))
+    kernel = PermutedClassSums(g, (codes != small).astype(np.intp), first=1)
+    factor = 1.0 / sizes[0] + 1.0 / sizes[1]
 
     def statistic(orders: np.ndarray) -> np.ndarray:
-        s = (kernel(orders) / sizes).sum(axis=1)  # tr(Q' G_o Q): G's rows sum to zero
+        s = kernel(orders)[:, 0] * factor
         with np.errstate(divide="ignore", invalid="ignore"):
             return s / ((total - s) / (m - 2))
 

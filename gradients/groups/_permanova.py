@@ -135,8 +135,15 @@ class _TermTest:
         if self.kernel is None and self.classes is not None:
             # One factor alone: tr(Q' G_o Q) = sum_c S_c / n_c, S_c the sum of G_o over the
             # block of class c (G's rows sum to zero), read over the blocks only.
-            self.kernel = PermutedClassSums(self.g, self.classes)
-            self._sizes = np.bincount(self.classes).astype(np.float64)
+            sizes = np.bincount(self.classes).astype(np.float64)
+            if sizes.size == 2:  # S_0 = S_1: the smaller block alone, weighted 1/n_0 + 1/n_1
+                small = int(np.argmin(sizes))
+                self.kernel = PermutedClassSums(self.g, (self.classes != small).astype(np.intp),
+                                                first=1)
+                self._sizes = np.array([1.0 / (1.0 / sizes[0] + 1.0 / sizes[1])])
+            else:
+                self.kernel = PermutedClassSums(self.g, self.classes)
+                self._sizes = sizes
         if self.kernel is None:
             bases = [self.tested] if self.second is None else [self.tested, self.second]
             self.kernel = PermutedTraces(self.g, bases)
@@ -428,7 +435,8 @@ def permanova(
     # Work on the sites sorted by label, so that every plan (whole units included) and hence
     # every p-value is the same however the rows of the inputs were ordered.
     order = np.argsort(site_ranks(given))
-    dm = dm.subset(given[order])
+    if not np.array_equal(order, np.arange(order.size)):
+        dm = dm.subset(given[order])
     if strata_values is not None:
         strata_values = strata_values[order]
     des, notes = read_design(design, dm.labels, terms)

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import contextlib
+import functools
 import itertools
 import numbers
 from collections.abc import Callable
@@ -197,10 +198,24 @@ def _one_blas_thread() -> contextlib.AbstractContextManager[object]:
     times slower. Parallel speed comes from ``n_jobs`` and the compiled kernels instead.
     """
     try:
-        from threadpoolctl import threadpool_limits
+        controller = _blas_controller()
     except ImportError:  # pragma: no cover - a declared dependency
         return contextlib.nullcontext()
-    return threadpool_limits(limits=1, user_api="blas")
+    return controller.limit(limits=1, user_api="blas")
+
+
+@functools.lru_cache(maxsize=1)
+def _blas_controller() -> object:
+    """The thread pools of the process, found once.
+
+    Looking them up scans every loaded library (about 5 ms in a process that has loaded
+    numba, scipy and pandas), which a call with many small tests paid on each test. scipy's
+    linear algebra, which may bring its own BLAS, is loaded first so that it is found too.
+    """
+    import scipy.linalg  # noqa: F401 - load every BLAS the analyses use before looking
+    from threadpoolctl import ThreadpoolController
+
+    return ThreadpoolController()
 
 
 def _run(statistic: Statistic, plan: PermutationPlan, obs_vec: np.ndarray, scalar: bool,
