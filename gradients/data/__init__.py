@@ -24,7 +24,8 @@ Module order (a module imports only modules above it in this list, so there is n
 15. ``_survey``: :class:`Survey` and :func:`read_survey`.
 16. ``_screening``: guideline quotients against a screening table.
 17. ``_demo_network``: the demo basin's river network, built from the site positions.
-18. ``_demo``: the simulated demo survey with its planted truth.
+18. ``_demo_zones``: the demo's bank land-use zones, drawn after every other draw.
+19. ``_demo``: the simulated demo survey with its planted truth.
 """
 
 from ._demo import DemoScenario, demo_survey, simulate_survey

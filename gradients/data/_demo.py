@@ -21,6 +21,7 @@ import pandas as pd
 
 from .._errors import InputError
 from .._validation import check_rng
+from ._demo_zones import ZONES, plant_zones
 from ._survey import Survey, read_survey
 
 __all__ = ["DEFAULT_SEED", "DEMO_DIR", "DemoScenario", "demo_survey", "simulate_survey"]
@@ -44,10 +45,6 @@ REACHES = ("Fennick Brook", "Ashlow Water", "Corvanne floodplain")
 HABITATS = ("margin", "pool", "riffle")
 #: P(margin), P(pool), P(riffle) on the tributaries and on the floodplain.
 _HABITAT_P = {"tributary": (0.2, 0.3, 0.5), "floodplain": (0.5, 0.4, 0.1)}
-#: Bank land-use zones, planted in stretches along every reach.
-ZONES = ("moorland", "plantation", "pasture")
-#: Standard deviation of each taxon's log-abundance shift per zone (a moderate effect).
-ZONE_SD = 0.5
 CENSOR_LIMIT_CD = 0.2
 SPATIAL_RANGE_KM = 3.0
 NB_SIZE = 1.5
@@ -189,39 +186,6 @@ def _spatial_fields(rng: np.random.Generator, x: np.ndarray, y: np.ndarray, k: i
     cov = np.exp(-d / SPATIAL_RANGE_KM) + 1e-9 * np.eye(len(x))
     chol = np.linalg.cholesky(cov)
     return chol @ rng.standard_normal((len(x), k))
-
-
-# -- zones: drawn after every other draw of the survey ------------------------------------------
-def _plant_zones(rng: np.random.Generator, reach: np.ndarray, valley: np.ndarray,
-                 counts: np.ndarray, lam: np.ndarray, mu: np.ndarray
-                 ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-    """Bank land-use zones and their effect on the counts, drawn after all other draws.
-
-    Each reach is cut into three stretches at two break points (the first a quarter to 40 %
-    of the way down the reach, the second 60 to 75 %), and the three zones are given to its
-    stretches in a random order, so every reach holds every zone. Each taxon's expected count
-    is multiplied by ``exp(e)`` in each zone, ``e ~ N(0, ZONE_SD)`` per taxon and zone. The
-    counts already drawn are Poisson given their gamma means ``lam``; multiplying by a factor
-    ``f`` below 1 is binomial thinning with probability ``f``, above 1 adding Poisson counts of
-    mean ``(f - 1) lam``: either way the new counts are Poisson with mean ``f lam`` and so
-    negative binomial with mean ``f mu`` and the same size, as if drawn with the zone effect in
-    the first place. Returns the zone of every site, the effects (zones x taxa), the new counts
-    and the new expected counts.
-    """
-    n, k = counts.shape
-    zone_code = np.empty(n, dtype=np.intp)
-    for name in REACHES:
-        members = np.flatnonzero(reach == name)
-        lo, hi = valley[members].min(), valley[members].max()
-        t = (valley[members] - lo) / max(hi - lo, 1e-12)  # 0..1 down this reach
-        breaks = np.array([rng.uniform(0.25, 0.4), rng.uniform(0.6, 0.75)])
-        order = np.argsort(rng.random(len(ZONES)))
-        zone_code[members] = order[np.searchsorted(breaks, t, side="right")]
-    effect = rng.normal(0.0, ZONE_SD, size=(len(ZONES), k))
-    factor = np.exp(effect[zone_code, :])
-    kept = rng.binomial(counts, np.minimum(factor, 1.0))
-    extra = rng.poisson(lam * np.maximum(factor - 1.0, 0.0))
-    return zone_code, effect, (kept + extra).astype(np.int64), mu * factor
 
 
 def simulate_survey(
@@ -404,7 +368,8 @@ def simulate_survey(
     counts = rng.poisson(lam).astype(np.int64)
     # -- zones (drawn after every other draw, so the environment and locations keep their
     #    values whatever is planted here) ------------------------------------------------------
-    zone_code, zone_effect, counts, mu = _plant_zones(rng, reach, valley, counts, lam, mu)
+    zone_code, zone_effect, counts, mu = plant_zones(rng, reach, valley, counts, lam, mu,
+                                                     reaches=REACHES)
     zone = np.array(ZONES, dtype=object)[zone_code]
     # -- end of zones --------------------------------------------------------------------------
     for i in np.flatnonzero(counts.sum(axis=1) == 0):

@@ -226,7 +226,8 @@ def test_zone_effect_gives_poisson_counts_of_the_shifted_means():
     # adding an independent Poisson((f - 1) lambda) gives Poisson(f lambda) too. With lambda = 4
     # at every site, the counts of each taxon in each zone must have mean and variance
     # 4 exp(effect) (within 5 standard errors of the mean; variance within 15 %).
-    from gradients.data._demo import REACHES, _plant_zones
+    from gradients.data._demo import REACHES
+    from gradients.data._demo_zones import plant_zones
 
     rng = np.random.default_rng(1)
     n, k = 3 * 4000, 4
@@ -234,7 +235,8 @@ def test_zone_effect_gives_poisson_counts_of_the_shifted_means():
     valley = np.tile(np.linspace(0.0, 1.0, n // 3), 3)
     lam = np.full((n, k), 4.0)
     counts = rng.poisson(lam)
-    zone, effect, new, mu = _plant_zones(rng, reach, valley, counts, lam, lam.copy())
+    zone, effect, new, mu = plant_zones(rng, reach, valley, counts, lam, lam.copy(),
+                                     reaches=REACHES)
     for z in range(3):
         rows = new[zone == z]
         expected = 4.0 * np.exp(effect[z])
