@@ -83,6 +83,9 @@ _EXPORTS: dict[str, str] = {
     "subset_search": "ranking",
     "turnover_model": "ranking",
     "rank_variables": "ranking",
+    "SubsetSearchResult": "ranking",
+    "TurnoverModelResult": "ranking",
+    "VariableRankingResult": "ranking",
     # groups
     "permanova": "groups",
     "dispersion_test": "groups",
