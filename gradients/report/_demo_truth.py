@@ -30,7 +30,7 @@ PLANTED = {
 
 def _zones(ctx: Context, truth: object) -> dict[str, object] | None:
     """The planted bank zones beside the PERMANOVA term and the indicator taxa of the zones."""
-    from ..data._demo import ZONE_SD, ZONES
+    from ..data._demo_zones import ZONE_SD, ZONES
 
     perm = ctx.results.get("permanova")
     indicators = (ctx.results.get("indicators") or {}).get("zone")
