@@ -31,6 +31,7 @@ from pathlib import Path
 
 import numpy as np
 import pandas as pd
+from _machine import free_cores  # benchmarks/ is on the path when a script runs
 from scipy.spatial.distance import pdist
 
 from gradients import DistanceMatrix, anosim, mrpp, permanova
@@ -186,26 +187,9 @@ def bench_ranks(n: int = 500, n_perm: int = 999) -> list[str]:
             f"| MRPP, same | - | {t_m:.3f} | - |"]
 
 
-def _free_cores() -> float:
-    """Speed-up of two threads over one on plain BLAS products right now: how much of the
-    second core the other work on this shared machine left free (2.0 = all of it)."""
-    from concurrent.futures import ThreadPoolExecutor
-
-    a = np.random.default_rng(0).normal(size=(500, 500))
-
-    def work(_: int) -> None:
-        for _ in range(15):
-            a @ a
-
-    one, _ = _timed(lambda: [work(i) for i in range(4)])
-    with ThreadPoolExecutor(2) as pool:
-        two, _ = _timed(lambda: list(pool.map(work, range(4))))
-    return one / two
-
-
 def main() -> None:
     before = os.getloadavg()[0]
-    free = _free_cores()
+    free = free_cores()
     rows, diff1 = bench_one_way()
     more, diff2 = bench_two_way()
     rows += more

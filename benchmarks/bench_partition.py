@@ -30,6 +30,7 @@ from pathlib import Path
 
 import numpy as np
 import pandas as pd
+from _machine import free_cores  # benchmarks/ is on the path when a script runs
 from scipy.spatial.distance import pdist
 
 from gradients.distance import DistanceMatrix, gower_centred
@@ -125,26 +126,9 @@ def bench_selection(n: int = 300, candidates: int = 30, n_perm: int = 999) -> li
             f"selected) | - | {t:.1f} | target < 60 s |"]
 
 
-def _free_cores() -> float:
-    """Speed-up of two threads over one on plain BLAS products right now: how much of the
-    second core the other work on this shared machine left free (2.0 = all of it)."""
-    from concurrent.futures import ThreadPoolExecutor
-
-    a = np.random.default_rng(0).normal(size=(500, 500))
-
-    def work(_: int) -> None:
-        for _ in range(15):
-            a @ a
-
-    one, _ = _timed(lambda: [work(i) for i in range(4)])
-    with ThreadPoolExecutor(2) as pool:
-        two, _ = _timed(lambda: list(pool.map(work, range(4))))
-    return one / two
-
-
 def main() -> None:
     before = os.getloadavg()[0]
-    free = _free_cores()
+    free = free_cores()
     rows, diff = bench_partial()
     rows += bench_selection()
     after = os.getloadavg()[0]
