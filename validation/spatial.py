@@ -7,8 +7,11 @@ the matrices are the absolute differences of the two fields between sites, and
 
 - ``plain``: the ordinary permutation p-value (``pvalue``);
 - ``constrained``: the p-value under Moran spectral randomisation of ``x`` (``pvalue_spatial``);
-- ``report's rule``: what the report's verdict rule reads: significant only if ``pvalue`` is
-  and, when the spatial check finds both matrices structured, ``pvalue_spatial`` as well.
+- ``check first``: the verdict rule the report used before: significant only if ``pvalue``
+  is and, when the spatial check finds both matrices structured, ``pvalue_spatial`` as well;
+- ``report's rule``: what the report's verdict rule reads now: significant only if both
+  ``pvalue`` and ``pvalue_spatial`` are (the constrained p-value is asked for whatever the
+  spatial check finds, because ``check first`` was too liberal under strong autocorrelation).
 
 Scenarios: both fields autocorrelated (Guillot & Rousset 2013: the plain test is too
 liberal); only ``x`` autocorrelated, or only ``y`` (no inflation expected: Quilodrán, Currat &
@@ -47,7 +50,7 @@ NAME = "spatial"
 RANGES = (0.0, 0.1, 0.3, 0.6)
 N_SITES = 50
 SCENARIOS = ("both autocorrelated", "x only", "y only")
-READINGS = ("plain", "constrained", "report's rule")
+READINGS = ("plain", "constrained", "check first", "report's rule")
 
 
 def gaussian_field(rng: np.random.Generator, xy: np.ndarray, scale: float) -> np.ndarray:
@@ -72,8 +75,9 @@ def one(rng: np.random.Generator, scale: float, scenario: str, permutations: int
                  n_resamples=permutations, n_surrogates=permutations, spatial_null=xy,
                  rng=int(rng.integers(2**32)))
     both = bool(res.spatial_structure["structured"].astype(bool).all())
-    rule = max(res.pvalue, res.pvalue_spatial) if both else res.pvalue
-    return {"plain": res.pvalue, "constrained": res.pvalue_spatial, "report's rule": rule,
+    check_first = max(res.pvalue, res.pvalue_spatial) if both else res.pvalue
+    return {"plain": res.pvalue, "constrained": res.pvalue_spatial, "check first": check_first,
+            "report's rule": max(res.pvalue, res.pvalue_spatial),
             "both structured": float(both)}
 
 
@@ -145,6 +149,7 @@ def figure(null: pd.DataFrame, alpha: float = 0.05) -> Figure:
     panels = {
         "Both fields autocorrelated": [("plain", "both autocorrelated", "-", 0),
                                        ("constrained", "both autocorrelated", "-", 1),
+                                       ("check first", "both autocorrelated", "--", 3),
                                        ("report's rule", "both autocorrelated", ":", 2)],
         "One field autocorrelated": [("plain", "x only", "-", 0),
                                      ("constrained", "x only", "-", 1),

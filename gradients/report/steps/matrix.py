@@ -105,13 +105,15 @@ def _spatial_check(sec: Section, results: dict[str, Any], label: str) -> None:
                  "inflate the plain test, so read pvalue there, with pvalue_spatial as a "
                  "check; where pvalue_spatial is above the level and pvalue is not, the "
                  "association may still be spatial (the check can miss weak or short-range "
-                 "structure), and the caveats say so.")
+                 "structure), and the caveats say so. The verdicts ask for pvalue_spatial in "
+                 "every test for that reason.")
     else:
         note += ("In no test are both matrices spatially structured: autocorrelation in one "
                  "matrix alone does not inflate the plain test, so read pvalue, with "
                  "pvalue_spatial as a check; where pvalue_spatial is above the level and "
                  "pvalue is not, the association may still be spatial (the check can miss "
-                 "weak or short-range structure), and the caveats say so.")
+                 "weak or short-range structure), and the caveats say so. The verdicts ask for "
+                 "pvalue_spatial in every test for that reason.")
     sec.notes.insert(0, note)
 
 

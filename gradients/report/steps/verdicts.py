@@ -80,17 +80,20 @@ def _matrix_rule(level: float, test: str) -> str:
     return (
         f"How the verdicts are decided. A test counts as significant when its effect is "
         f"positive and its p-value at most {level}: the {test} test by its p-value "
-        "Holm-adjusted across hypotheses and, where the spatial check found both matrices "
-        "spatially structured (spatially_structured), also by its spatially constrained "
-        "p-value, which is not adjusted across hypotheses (each hypothesis must pass it on its "
-        "own); the regression on distance matrices by the p-value of its coefficient. A "
+        "Holm-adjusted across hypotheses and, wherever the sites have locations, also by its "
+        "spatially constrained p-value, which is not adjusted across hypotheses (each "
+        "hypothesis must pass it on its own). It is asked for whatever the spatial check found "
+        "(spatially_structured): the check is itself a test that can miss structure, and "
+        "asking for the constrained p-value only where it found some rejected a true null too "
+        "often under strong autocorrelation. The regression on distance matrices counts by "
+        "the p-value of its coefficient. A "
         f"significant effect (Mantel r or standardised regression coefficient) below "
         f"{NEGLIGIBLE_EFFECT} is called negligible: Cohen's (1988) threshold for a small "
         "correlation, applied to these statistics as this report's own rule. The verdict is "
         f"'associated, but not separable from spatial structure' when the {test} test is "
         "significant by its Holm-adjusted p-value but not against the spatially constrained "
-        "null while both matrices are spatially structured (whatever the regression says: it "
-        "has no spatially constrained test); otherwise 'supported' when every test is "
+        "null (whatever the regression says: it has no spatially constrained test); "
+        "otherwise 'supported' when every test is "
         "significant and not negligible, 'partly supported' when one is, 'significant but "
         "negligible' when a test is significant but each significant effect is below "
         f"{NEGLIGIBLE_EFFECT}, and 'not supported' when no test is significant.")
@@ -237,7 +240,7 @@ def verdicts_step(ctx: Context) -> None:
             bits.append(f"{'partial ' if kind == 'partial_mantel' else ''}Mantel r = "
                         f"{row[rcol]:.2f}, {_fmt_p(row[pcol])}"
                         + (f", spatially constrained {_fmt_p(sp)}"
-                           if evidence.spatially_structured and sp is not None and pd.notna(sp)
+                           if sp is not None and pd.notna(sp)
                            else ""))
         if "regression_pvalue" in table and pd.notna(row.get("regression_pvalue")):
             bits.append(f"regression coefficient {row['regression_std_coefficient']:.2f}, "
@@ -271,8 +274,7 @@ def verdicts_step(ctx: Context) -> None:
         sec.paragraphs.append("Space: " + "; ".join(spatial) + ". Simple and partial Mantel "
                               "tests can then give p-values that are too small (Guillot & "
                               "Rousset 2013); this is why the verdicts also ask for the "
-                              "spatially constrained p-value where both matrices are "
-                              "spatially structured.")
+                              "spatially constrained p-value.")
     ctx.sections.insert(0, sec)
     plot_rows = []
     for name, row in table.iterrows():
@@ -291,7 +293,7 @@ def verdicts_step(ctx: Context) -> None:
     ctx.methods.append(
         "Verdicts per hypothesis: " + " ".join(summary)
         + f" {test_name} p-values were Holm-adjusted across hypotheses for the verdicts; "
-        "where both matrices were spatially structured, the spatially constrained p-value "
+        "where the sites had locations, the spatially constrained p-value "
         f"(not adjusted) had to be at most {level} as well, and significant effects below "
         f"{NEGLIGIBLE_EFFECT} were called negligible (Cohen's 1988 small correlation, used as "
         "this report's own rule)."
