@@ -103,6 +103,14 @@ class Finding:
     level: str
     step: str
     message: str
+    file: str | None = None
+    sites: tuple[object, ...] = ()
+    columns: tuple[object, ...] = ()
+
+    @classmethod
+    def of(cls, step: str, exc: InputError) -> Finding:
+        """The error finding of an :class:`InputError` (its file, sites and columns kept)."""
+        return cls("error", step, str(exc), exc.file, tuple(exc.sites), tuple(exc.columns))
 
 
 class PreflightError(InputError):
@@ -115,7 +123,10 @@ class PreflightError(InputError):
         else:
             text = (f"{len(errors)} problems must be fixed before the analyses can run:\n"
                     + "\n".join(f"  {i}. {f.message}" for i, f in enumerate(errors, 1)))
-        super().__init__(text)
+        files = [f.file for f in errors if f.file]
+        super().__init__(text, file=files[0] if len(set(files)) == 1 else None,
+                         sites=list(dict.fromkeys(s for f in errors for s in f.sites)),
+                         columns=list(dict.fromkeys(c for f in errors for c in f.columns)))
         self.findings = tuple(findings)
 
 
@@ -207,7 +218,7 @@ def preflight(ctx: Context, steps: Sequence[Step]) -> list[Finding]:
             else:
                 ctx.planned_skips[s.name] = str(exc)
         except InputError as exc:
-            ctx.findings.append(Finding("error", s.name, str(exc)))
+            ctx.findings.append(Finding.of(s.name, exc))
             if s.prepares:
                 break
         except Exception as exc:
@@ -217,7 +228,7 @@ def preflight(ctx: Context, steps: Sequence[Step]) -> list[Finding]:
             try:
                 resource(ctx)
             except InputError as exc:
-                ctx.findings.append(Finding("error", "resources", str(exc)))
+                ctx.findings.append(Finding.of("resources", exc))
     return ctx.findings
 
 

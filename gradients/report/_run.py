@@ -82,10 +82,33 @@ _PROJECT_KEYS = {
 }
 
 
+#: Advice of the data stage in Python words (keywords of ``read_survey``), and the same advice
+#: in the project file's keys: (pattern, replacement) for :func:`re.sub`, applied in order.
+_PROJECT_PHRASES = (
+    (r"Pass sheet= with one of these names or a 0-based index",
+     "Name one of these sheets in `[inputs.sheets]`, e.g. community = \"counts\""),
+    (r"pass sheet= to choose another", "name another in `[inputs.sheets]`"),
+    (r"crs='([^']*)'", r'crs = "\1"'),
+    (r"\bPass crs=", "Set `[inputs] crs`"),
+    (r"\bpass crs=", "set `[inputs] crs`"),
+    (r"\bdrop crs=", "remove `crs` from [inputs]"),
+    (r"\bgiven by crs=", "given by `[inputs] crs`"),
+    (r"\band crs=", "and `[inputs] crs`"),
+    (r"coordinates=\('([^']*)', '([^']*)'\)", r'`[inputs] coordinates = ["\1", "\2"]`'),
+    (r"\b[Pp]ass `\[inputs\] coordinates", "set `[inputs] coordinates"),
+    (r"censored=:", "`[inputs] below_detection`:"),
+    (r"Survey\.log", "the input decisions"),
+)
+
+
 def _project_words(message: str) -> str:
     """Say the data stage's advice in the project file's keys."""
+    import re
+
     for option, key in _PROJECT_KEYS.items():
         message = message.replace(f"`{option}`", key).replace(option, key)
+    for pattern, words in _PROJECT_PHRASES:
+        message = re.sub(pattern, words, message)
     return message
 
 
