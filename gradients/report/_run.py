@@ -285,6 +285,9 @@ def analyse(survey: Any, *, settings: dict[str, Any] | None = None,
         "skipped": [{"analysis": a, "reason": r} for a, r in ctx.skipped],
         "timings": {**ctx.timings, "analysis_total": round(time.perf_counter() - start, 3)},
     }
+    warned = [f.message for f in ctx.findings if f.level == "warning"]
+    if warned:
+        run_info["warnings"] = warned
     sites = pd.DataFrame(ctx.site_columns) if ctx.site_columns else None
     return Outcome(title=title or full["title"], sections=order_sections(ctx.sections),
                    methods=methods,

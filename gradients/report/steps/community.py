@@ -27,6 +27,11 @@ def community_step(ctx: Context) -> None:
 
     community = ctx.survey.community
     _check_community(community)
+    twins = community.index[community.duplicated(keep=False)]
+    if len(twins):
+        ctx.warn("community", f"Sites {format_items([str(t) for t in twins])} have identical "
+                 "communities (their dissimilarity is 0). They are kept; check "
+                 "`[inputs] community` if the rows were copied by mistake.")
     transform = ctx.settings["community.transform"]
     metric = ctx.settings["community.dissimilarity"]
     table = community
