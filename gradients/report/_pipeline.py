@@ -76,8 +76,9 @@ class Context:
     #: What the pre-flight found, and the steps it planned as not run (name -> reason).
     findings: list[Finding] = field(default_factory=list)
     planned_skips: dict[str, str] = field(default_factory=dict)
-    #: Steps already run (by the pre-flight).
+    #: Steps already run (by the pre-flight), and whether the pre-flight has run.
     done: set[str] = field(default_factory=set)
+    checked: bool = False
 
     def warn(self, step: str, message: str) -> None:
         """Record a warning of the pre-flight (printed by ``gradients check``, kept in the run)."""
@@ -197,6 +198,7 @@ def preflight(ctx: Context, steps: Sequence[Step]) -> list[Finding]:
     added to ``ctx.findings``; nothing is raised for an :class:`InputError` of the data, so
     that every problem is listed at once (see :func:`run_steps` for the refusal).
     """
+    ctx.checked = True
     for s in _todo(ctx, steps):
         if s.name in ctx.done or s.name in ctx.planned_skips:
             continue
@@ -244,7 +246,7 @@ def run_steps(ctx: Context, steps: Sequence[Step]) -> None:
     """
     from ..permutation import current_reporter
 
-    if not ctx.done and not ctx.findings:
+    if not ctx.checked:
         preflight(ctx, steps)
     if any(f.level == "error" for f in ctx.findings):
         raise PreflightError(ctx.findings)

@@ -16,6 +16,8 @@ from __future__ import annotations
 
 import csv
 import json
+import re
+import warnings
 from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
@@ -218,7 +220,9 @@ def _gpkg(ws: Workspace, geometry: str, crs: str | None) -> None:
     else:
         geoms = [Point(x, y) for x, y in zip(loc["longitude"], loc["latitude"], strict=True)]
     gdf = gpd.GeoDataFrame({"site": loc["site"]}, geometry=geoms, crs=crs)
-    gdf.to_file(ws.root / "locations.gpkg", layer="sites", driver="GPKG")
+    with warnings.catch_warnings():  # pyogrio warns about the missing CRS: that is the case
+        warnings.simplefilter("ignore", UserWarning)
+        gdf.to_file(ws.root / "locations.gpkg", layer="sites", driver="GPKG")
     ws.settings["inputs"]["locations"] = "locations.gpkg"
     ws.settings["inputs"].pop("crs", None)
     ws.write()
@@ -482,6 +486,10 @@ CASES: list[Case] = [
          ("/sys/gradients-corpus-report", "permission problem")),
 ]
 
+#: A Python keyword argument in advice (``crs='EPSG:4326'``, ``sheet=``): on the command line
+#: the advice names the project file's keys instead.
+PYTHON_KEYWORD = re.compile(r"\b[a-z_]+=($|[\s'\"(\[{.,]|True|False|None)")
+
 FORBIDDEN = ("Traceback", "RuntimeWarning", "floating-point warning", "bug in gradients",
              "unexpected error")
 
@@ -511,6 +519,7 @@ def test_case(case: Case, workspace: Workspace, capsys: pytest.CaptureFixture[st
             assert phrase in said, f"{phrase!r} missing from: {said}"
         for bad in FORBIDDEN:
             assert bad not in said, said
+        assert not PYTHON_KEYWORD.search(said), said
     assert _left_behind(workspace, before) == []
     assert not list(workspace.root.glob(".report.partial-*"))
 
