@@ -348,7 +348,7 @@ CASES: list[Case] = [
          _set(hypotheses__texture=["sand", "silt"], hypotheses__water=["pH", "clay"]),
          ("is split between hypotheses", "put all of them in one hypothesis")),
     Case("composition partly named", _set(hypotheses__texture=["sand"]),
-         ("names only 'sand'", "Add 'silt', 'clay' to that hypothesis",
+         ("`hypotheses.texture` names only 'sand'", "Add 'silt', 'clay' to `hypotheses.texture`",
           "`environment.compositions`")),
     Case("texture with two columns", _set(environment__texture=["sand", "silt"]),
          ("`environment.texture` must name three columns",)),

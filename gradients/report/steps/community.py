@@ -100,7 +100,8 @@ def _analysis_environment(ctx: Context) -> pd.DataFrame:
     return out
 
 
-def _composition_plan(ctx: Context, variables: tuple[str, ...]) -> dict[object, str]:
+def _composition_plan(ctx: Context, variables: tuple[str, ...],
+                      key: str = "the hypothesis") -> dict[object, str]:
     """The transforms of one hypothesis' variables: log10 where asked, ilr for compositions.
 
     A composition only part of which the hypothesis names is an error (its parts enter
@@ -116,21 +117,22 @@ def _composition_plan(ctx: Context, variables: tuple[str, ...]) -> dict[object, 
             if len(parts) != len(comp):
                 rest = [p for p in comp if p not in parts]
                 raise InputError(
-                    f"`environment.compositions` lists {list(comp)}, but the hypothesis names "
-                    f"only {format_items(parts)}: the parts of a composition enter together as "
-                    f"log-ratios. Add {format_items(rest)} to that hypothesis in [hypotheses], "
-                    "or remove the composition from `environment.compositions`.",
+                    f"`environment.compositions` lists {list(comp)}, but {key} names only "
+                    f"{format_items(parts)}: the parts of a composition enter together as "
+                    f"log-ratios. Add {format_items(rest)} to {key}, or remove the "
+                    "composition from `environment.compositions`.",
                     columns=list(comp))
             plan[parts] = "ilr"
     return plan
 
 
-def _hypothesis_table(ctx: Context, variables: tuple[str, ...]) -> pd.DataFrame:
+def _hypothesis_table(ctx: Context, variables: tuple[str, ...],
+                      key: str = "the hypothesis") -> pd.DataFrame:
     """The variables of one hypothesis in analysis units (log10, ilr for compositions)."""
     from ...distance import transform_environment
 
     env = ctx.survey.environment
-    plan = _composition_plan(ctx, variables)
+    plan = _composition_plan(ctx, variables, key)
     frame = env.loc[:, list(variables)]
     if not plan:
         return frame
@@ -258,12 +260,12 @@ def environment_step(ctx: Context) -> None:
     ctx.results["analysis_names"] = {c: (f"log10({c})" if c in logs else c) for c in env.columns}
     distances = {}
     for name, variables in ctx.hypotheses.items():
-        table = _hypothesis_table(ctx, variables)
+        table = _hypothesis_table(ctx, variables, f"`hypotheses.{name}`")
         _check_counts(ctx, name, table, f"`hypotheses.{name}`")
         distances[name] = environmental_distance(table)
     cov = ctx.settings["design.covariables"]
     if cov:
-        table = _hypothesis_table(ctx, tuple(cov))
+        table = _hypothesis_table(ctx, tuple(cov), "`design.covariables`")
         _check_counts(ctx, "the covariables", table, "`design.covariables`")
         distances_cov = environmental_distance(table)
         ctx.results["covariables"] = distances_cov
