@@ -9,15 +9,21 @@
     gradients --version
 
 The command line only parses arguments and calls :mod:`gradients.report`. Problems with the
-input print one message to stderr and exit with status 2; unexpected errors exit with status 1
-and a hint. Long permutation runs show a progress bar when stderr is a terminal.
+input print one message to stderr and exit with status 2 (a folder or file that cannot be read
+or written is such a problem, named with its path); unexpected errors exit with status 1 and a
+hint. Ctrl-C exits with status 130 and SIGTERM with 143, each with one line and no half-written
+report folder. Warnings are printed as one line each, in words (a floating-point warning of a
+computation is counted, not printed raw). Long permutation runs show a progress bar when
+stderr is a terminal.
 """
 
 from __future__ import annotations
 
 import argparse
+import signal
 import sys
 import time
+import warnings
 from collections.abc import Sequence
 from typing import Any
 
@@ -27,6 +33,16 @@ from ._errors import InputError
 __all__ = ["main"]
 
 EXIT_OK, EXIT_BUG, EXIT_INPUT = 0, 1, 2
+#: Exit statuses after Ctrl-C and SIGTERM (128 + the signal number, the shells' convention).
+EXIT_INTERRUPTED, EXIT_TERMINATED = 130, 143
+
+
+class Terminated(BaseException):
+    """Raised in the main thread when the process receives SIGTERM (handled like Ctrl-C)."""
+
+
+def _on_sigterm(signum: int, frame: object) -> None:
+    raise Terminated
 
 
 def _parser() -> argparse.ArgumentParser:
@@ -112,21 +128,21 @@ def _cmd_init(args: argparse.Namespace) -> int:
 
 
 def _cmd_check(args: argparse.Namespace) -> int:
-    from .report._check import check_project, check_tables, describe
+    from .report._check import check, check_tables, describe
 
     if args.project is not None:
         if args.community or args.environment or args.locations:
             raise InputError("Give either a project file or --community/--environment "
                              "(/--locations), not both.")
-        survey, project = check_project(args.project)
+        prepared = check(args.project)
     else:
         if not (args.community and args.environment):
             raise InputError("Give a project file, or at least --community and --environment "
                              "tables to check.")
-        survey, project = check_tables(args.community, args.environment, args.locations,
-                                       site_column=args.site_column, crs=args.crs,
-                                       censored=args.below_detection)
-    print(describe(survey, project))
+        prepared = check_tables(args.community, args.environment, args.locations,
+                                site_column=args.site_column, crs=args.crs,
+                                censored=args.below_detection)
+    print(describe(prepared.survey, prepared.project, prepared))
     return EXIT_OK
 
 
@@ -154,14 +170,28 @@ def main(argv: Sequence[str] | None = None) -> int:
     if args.command is None:
         parser.print_help(sys.stderr)
         return EXIT_INPUT
+    previous = _install_sigterm()
+    counted: list[str] = []
     try:
-        return COMMANDS[args.command](args)
+        with warnings.catch_warnings():
+            warnings.simplefilter("default")
+            warnings.showwarning = _warning_printer(args.command, counted)
+            return COMMANDS[args.command](args)
     except InputError as exc:
         print(f"gradients {args.command}: {exc}", file=sys.stderr)
         return EXIT_INPUT
     except KeyboardInterrupt:
         print("gradients: interrupted; no report folder was written.", file=sys.stderr)
-        return 130
+        return EXIT_INTERRUPTED
+    except Terminated:
+        print("gradients: stopped by SIGTERM; no report folder was written.", file=sys.stderr)
+        return EXIT_TERMINATED
+    except OSError as exc:  # a file or folder the system refuses: a problem with the path
+        where = exc.filename if exc.filename is not None else "a file or folder"
+        print(f"gradients {args.command}: cannot use {str(where)!r}: "
+              f"{exc.strerror or exc}. This is a problem with the file or folder (its "
+              "permissions, or the disk), not a bug: fix it and run again.", file=sys.stderr)
+        return EXIT_INPUT
     except Exception as exc:
         print(f"gradients {args.command}: unexpected error: {type(exc).__name__}: {exc}\n"
               "This is a bug in gradients, not a problem with your data. Please report it "
@@ -174,6 +204,41 @@ def main(argv: Sequence[str] | None = None) -> int:
 
             traceback.print_exc()
         return EXIT_BUG
+    finally:
+        if counted:
+            print(f"gradients {args.command}: note: {len(counted)} floating-point warning(s) "
+                  "arose in the computations (an overflow, a division by zero or an invalid "
+                  "value). The inputs passed every check, so please report this with the "
+                  "command you ran.", file=sys.stderr)
+        _restore_sigterm(previous)
+
+
+def _install_sigterm() -> Any:
+    try:
+        return signal.signal(signal.SIGTERM, _on_sigterm)
+    except ValueError:  # not the main thread: leave the handler alone
+        return None
+
+
+def _restore_sigterm(previous: Any) -> None:
+    if previous is not None:
+        try:
+            signal.signal(signal.SIGTERM, previous)
+        except ValueError:
+            pass
+
+
+def _warning_printer(command: str, counted: list[str]) -> Any:
+    """A ``warnings.showwarning`` that prints one line per warning, in words."""
+
+    def show(message: Warning | str, category: type[Warning], filename: str, lineno: int,
+             file: Any = None, line: str | None = None) -> None:
+        if issubclass(category, RuntimeWarning):
+            counted.append(str(message))
+            return
+        print(f"gradients {command}: warning: {message}", file=sys.stderr)
+
+    return show
 
 
 if __name__ == "__main__":  # pragma: no cover

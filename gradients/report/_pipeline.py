@@ -18,6 +18,15 @@ What happens to a step, and nothing else can:
 - any other exception (a bug, a missing module): the run stops with a :class:`StepError` that
   names the step and the original error. No report folder is written: the report is written
   only after every step has run.
+
+Before any analysis runs, :func:`preflight` checks the whole job: the steps that prepare the
+distance matrices (``prepares``, cheap, no permutations) run for real, and every other step
+that would run calls its own ``check`` (the pre-flight of its inputs, written beside its run
+code). Every problem found becomes a :class:`Finding` naming the project key to change;
+``gradients check`` prints them and a run refuses to start while any is an error, so the check
+and the run take one code path and cannot disagree. A ``check`` that raises :class:`Skip`
+plans the step as not run (listed with its reason), unless the project file asks for the
+analysis itself (``analyses.<step> = true``, or the variables it names): then it is an error.
 """
 
 from __future__ import annotations
@@ -34,7 +43,8 @@ import pandas as pd
 from .._errors import InputError
 from ._model import Section
 
-__all__ = ["Context", "Skip", "Step", "StepError", "rng_for", "run_steps"]
+__all__ = ["RESOURCE_CHECKS", "Context", "Finding", "PreflightError", "Skip", "Step",
+           "StepError", "preflight", "rng_for", "run_steps"]
 
 
 def rng_for(seed: int, name: str) -> np.random.Generator:
@@ -61,6 +71,18 @@ class Context:
     skipped: list[tuple[str, str]] = field(default_factory=list)
     timings: dict[str, float] = field(default_factory=dict)
     site_columns: dict[str, pd.Series] = field(default_factory=dict)
+    #: ``"section.key"`` settings the project file gives itself (not defaults).
+    given: frozenset[str] = frozenset()
+    #: What the pre-flight found, and the steps it planned as not run (name -> reason).
+    findings: list[Finding] = field(default_factory=list)
+    planned_skips: dict[str, str] = field(default_factory=dict)
+    #: Steps already run (by the pre-flight), and whether the pre-flight has run.
+    done: set[str] = field(default_factory=set)
+    checked: bool = False
+
+    def warn(self, step: str, message: str) -> None:
+        """Record a warning of the pre-flight (printed by ``gradients check``, kept in the run)."""
+        self.findings.append(Finding("warning", step, message))
 
     def rng(self, name: str) -> np.random.Generator:
         return rng_for(self.seed, name)
@@ -76,6 +98,47 @@ StepFunction = Callable[[Context], None]
 
 
 @dataclass(frozen=True)
+class Finding:
+    """One problem the pre-flight found: ``level`` is "error" (the run refuses) or "warning"."""
+
+    level: str
+    step: str
+    message: str
+    file: str | None = None
+    sites: tuple[object, ...] = ()
+    columns: tuple[object, ...] = ()
+
+    @classmethod
+    def of(cls, step: str, exc: InputError) -> Finding:
+        """The error finding of an :class:`InputError` (its file, sites and columns kept)."""
+        return cls("error", step, str(exc), exc.file, tuple(exc.sites), tuple(exc.columns))
+
+
+class PreflightError(InputError):
+    """The pre-flight found errors: the run does not start. ``findings`` lists all of them."""
+
+    def __init__(self, findings: Sequence[Finding]) -> None:
+        errors = [f for f in findings if f.level == "error"]
+        if len(errors) == 1:
+            text = errors[0].message
+        else:
+            text = (f"{len(errors)} problems must be fixed before the analyses can run:\n"
+                    + "\n".join(f"  {i}. {f.message}" for i, f in enumerate(errors, 1)))
+        files = [f.file for f in errors if f.file]
+        super().__init__(text, file=files[0] if len(set(files)) == 1 else None,
+                         sites=list(dict.fromkeys(s for f in errors for s in f.sites)),
+                         columns=list(dict.fromkeys(c for f in errors for c in f.columns)))
+        self.findings = tuple(findings)
+
+
+#: Checks of the resources a run needs (memory, time), called at the end of every pre-flight
+#: with the prepared context; each adds findings with :meth:`Context.warn` or raises
+#: :class:`InputError`. The place for checks that depend on the size of the job, not its
+#: inputs.
+RESOURCE_CHECKS: list[StepFunction] = []
+
+
+@dataclass(frozen=True)
 class Step:
     """One analysis step of a run.
 
@@ -88,6 +151,11 @@ class Step:
     run: StepFunction
     setting: str | None = None
     required: bool = False
+    #: The pre-flight of the step's inputs: raises InputError (an error), Skip (not run, for a
+    #: reason of the data) or adds warnings; None when the step has nothing to check.
+    check: StepFunction | None = None
+    #: A cheap step that the pre-flight runs for real (it prepares what later checks need).
+    prepares: bool = False
 
 
 class Skip(Exception):
@@ -113,20 +181,85 @@ class StepError(RuntimeError):
         self.step = step
 
 
+def _todo(ctx: Context, steps: Sequence[Step]) -> list[Step]:
+    return [s for s in steps if s.setting is None or ctx.settings.get(s.setting, True)]
+
+
+def _asked(ctx: Context, step: Step) -> bool:
+    """Whether the project file itself switches ``step`` on (not only by default)."""
+    return step.setting is not None and step.setting in ctx.given
+
+
+def preflight(ctx: Context, steps: Sequence[Step]) -> list[Finding]:
+    """Check the whole job before any analysis runs; return what was found.
+
+    The ``prepares`` steps run (an error in one ends the pre-flight: the later checks need its
+    result); every other step that would run calls its ``check``. Errors and warnings are
+    added to ``ctx.findings``; nothing is raised for an :class:`InputError` of the data, so
+    that every problem is listed at once (see :func:`run_steps` for the refusal).
+    """
+    ctx.checked = True
+    for s in _todo(ctx, steps):
+        if s.name in ctx.done or s.name in ctx.planned_skips:
+            continue
+        try:
+            if s.prepares:
+                start = time.perf_counter()
+                s.run(ctx)
+                ctx.timings[s.name] = round(time.perf_counter() - start, 3)
+                ctx.done.add(s.name)
+            elif s.check is not None:
+                s.check(ctx)
+        except Skip as exc:
+            if s.prepares or s.required or _asked(ctx, s):
+                why = (f" `{s.setting}` is switched on in the project file: remove it, or fix "
+                       "the inputs." if _asked(ctx, s) else "")
+                ctx.findings.append(Finding("error", s.name, f"{exc}{why}"))
+                if s.prepares:
+                    break
+            else:
+                ctx.planned_skips[s.name] = str(exc)
+        except InputError as exc:
+            ctx.findings.append(Finding.of(s.name, exc))
+            if s.prepares:
+                break
+        except Exception as exc:
+            raise StepError(s.name, exc) from exc
+    else:
+        for resource in RESOURCE_CHECKS:
+            try:
+                resource(ctx)
+            except InputError as exc:
+                ctx.findings.append(Finding.of("resources", exc))
+    return ctx.findings
+
+
 def run_steps(ctx: Context, steps: Sequence[Step]) -> None:
     """Run ``steps`` in the order given (telling an installed progress reporter).
 
-    A :class:`Skip`, or an :class:`InputError` of a step that is not ``required``, lists the
+    The pre-flight (:func:`preflight`) runs first unless it already has; when it found an
+    error, :class:`PreflightError` is raised before any analysis starts. Then, step by step: a
+    step the pre-flight planned as not run is listed in ``ctx.skipped`` with its reason; a
+    :class:`Skip`, or an :class:`InputError` of a step that is not ``required``, lists the
     step in ``ctx.skipped`` with its reason; an ``InputError`` of a required step is raised as
     it is; any other exception is raised as a :class:`StepError` naming the step.
     """
     from ..permutation import current_reporter
 
-    todo = [s for s in steps if s.setting is None or ctx.settings.get(s.setting, True)]
+    if not ctx.checked:
+        preflight(ctx, steps)
+    if any(f.level == "error" for f in ctx.findings):
+        raise PreflightError(ctx.findings)
+    todo = _todo(ctx, steps)
     reporter = current_reporter()
     for i, s in enumerate(todo):
         if reporter is not None:
             reporter("running analyses", i, len(todo))
+        if s.name in ctx.done:
+            continue
+        if s.name in ctx.planned_skips:
+            ctx.skipped.append((s.name, ctx.planned_skips[s.name]))
+            continue
         start = time.perf_counter()
         try:
             s.run(ctx)

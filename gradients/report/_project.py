@@ -111,10 +111,15 @@ SCHEMA: dict[str, dict[str, Key]] = {
                           "fraction\"`; by default inferred from the units. Quantities: mass "
                           "fraction, percent, concentration in water, amount concentration, "
                           "amount content, conductivity, pH, temperature, length, turbidity."),
-        "renormalise_compositions": Key("bool", False, "Rescale to 100 the samples whose parts "
-                                        "of a composition (the texture) do not sum to 100 "
-                                        "within 1 percentage point, instead of stopping with "
-                                        "an error naming them; listed in the input decisions."),
+        "renormalise_compositions": Key("bool", False, "Rescale to their total the samples "
+                                        "whose parts of a composition (each of "
+                                        "`compositions`, and the `texture`) do not sum to it "
+                                        "within 1 % of the total, instead of stopping with an "
+                                        "error naming them; listed in the input decisions."),
+        "composition_total": Key("number", 100.0, "The whole the parts of each of "
+                                 "`compositions` sum to: 100 for percentages, 1 for "
+                                 "proportions (the texture is always in percent).",
+                                 minimum=0),
         "texture": Key("names", (), "The sand, silt and clay columns, in this order (e.g. "
                        "[\"sand\", \"silt\", \"clay\"], percentages): the report then gives "
                        "each site's USDA texture class and the texture triangle."),
@@ -235,6 +240,8 @@ class Project:
     settings: dict[str, Any]
     hypotheses: dict[str, tuple[str, ...]] = field(default_factory=dict)
     source: Path | None = None
+    #: The ``"section.key"`` settings the file gives itself (the others are defaults).
+    given: frozenset[str] = frozenset()
 
     def __getitem__(self, key: str) -> Any:
         return self.settings[key]
@@ -354,6 +361,11 @@ def project_from_dict(data: dict[str, Any], *, base: Path | None = None,
             for hname, variables in table.items():
                 if not hname.strip():
                     raise InputError("A hypothesis in [hypotheses] has an empty name.")
+                if isinstance(variables, str):
+                    raise InputError(
+                        f"{_where('hypotheses', hname)} must be a list of column names in "
+                        f"square brackets, even for one variable: write {hname} = "
+                        f'["{variables}"] (a hypothesis is a group of variables).')
                 hypotheses[hname] = _check_names(variables, _where("hypotheses", hname))
                 if not hypotheses[hname]:
                     raise InputError(f"{_where('hypotheses', hname)} lists no variables; name "
@@ -382,6 +394,11 @@ def project_from_dict(data: dict[str, Any], *, base: Path | None = None,
     for full in ("inputs.community", "inputs.environment", "inputs.locations",
                  "environment.screening", "geography.network"):
         path = settings.get(full)
+        if path is not None and Path(path).is_dir():
+            raise InputError(
+                f"`{full}` names {str(path)!r}, which is a folder, not a file. Give the path "
+                "of the file itself (relative paths are read from the folder holding the "
+                "project file).", file=str(path))
         if path is not None and not Path(path).is_file():
             raise InputError(
                 f"`{full}` names the file {str(path)!r}, which does not exist. Relative paths "
@@ -400,7 +417,11 @@ def project_from_dict(data: dict[str, Any], *, base: Path | None = None,
                          f"then latitude); got {list(coords)}.")
     _cross_check(settings, hypotheses)
     _check_geography(settings)
-    return Project(settings, hypotheses, source)
+    given = frozenset(f"{section}.{name}" if section else name
+                      for section, keys in SCHEMA.items() if section != "hypotheses"
+                      for name in (data if not section else data.get(section, {}))
+                      if name in keys)
+    return Project(settings, hypotheses, source, given)
 
 
 def _check_geography(settings: dict[str, Any]) -> None:
@@ -460,6 +481,10 @@ def _cross_check(settings: dict[str, Any], hypotheses: dict[str, tuple[str, ...]
 def load_project(path: str | Path) -> Project:
     """Read and validate a project file (TOML)."""
     path = Path(path).expanduser()
+    if path.is_dir():
+        raise InputError(f"{str(path)!r} is a folder, not a project file: give the path of "
+                         "the .toml file itself (e.g. project.toml in that folder).",
+                         file=str(path))
     if not path.is_file():
         raise InputError(f"Project file {str(path)!r} does not exist. Create one with "
                          "`gradients init DIR`.", file=str(path))

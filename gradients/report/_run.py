@@ -7,6 +7,8 @@ import json
 import platform
 import sys
 import time
+from collections.abc import Collection
+from dataclasses import dataclass
 from importlib import metadata
 from pathlib import Path
 from typing import Any
@@ -17,12 +19,13 @@ from .._errors import InputError
 from ._html import render_html
 from ._methods import methods_paragraph
 from ._model import Outcome
-from ._pipeline import Context, run_steps
+from ._pipeline import Context, Finding, PreflightError, preflight, run_steps
 from ._project import Project, defaults, load_project
 from ._safety import safe_name
 from ._writers import OutputFolder, write_csv, write_workbook
 
-__all__ = ["analyse", "read_project_survey", "run_project", "write_report"]
+__all__ = ["Prepared", "analyse", "prepare", "prepare_run", "read_project_survey",
+           "run_project", "write_report"]
 
 DEPENDENCIES = ("numpy", "scipy", "pandas", "statsmodels", "matplotlib", "geopandas", "shapely",
                 "pyproj", "pyogrio", "numba", "joblib", "openpyxl", "pint")
@@ -79,10 +82,33 @@ _PROJECT_KEYS = {
 }
 
 
+#: Advice of the data stage in Python words (keywords of ``read_survey``), and the same advice
+#: in the project file's keys: (pattern, replacement) for :func:`re.sub`, applied in order.
+_PROJECT_PHRASES = (
+    (r"Pass sheet= with one of these names or a 0-based index",
+     "Name one of these sheets in `[inputs.sheets]`, e.g. community = \"counts\""),
+    (r"pass sheet= to choose another", "name another in `[inputs.sheets]`"),
+    (r"crs='([^']*)'", r'crs = "\1"'),
+    (r"\bPass crs=", "Set `[inputs] crs`"),
+    (r"\bpass crs=", "set `[inputs] crs`"),
+    (r"\bdrop crs=", "remove `crs` from [inputs]"),
+    (r"\bgiven by crs=", "given by `[inputs] crs`"),
+    (r"\band crs=", "and `[inputs] crs`"),
+    (r"coordinates=\('([^']*)', '([^']*)'\)", r'`[inputs] coordinates = ["\1", "\2"]`'),
+    (r"\b[Pp]ass `\[inputs\] coordinates", "set `[inputs] coordinates"),
+    (r"censored=:", "`[inputs] below_detection`:"),
+    (r"Survey\.log", "the input decisions"),
+)
+
+
 def _project_words(message: str) -> str:
     """Say the data stage's advice in the project file's keys."""
+    import re
+
     for option, key in _PROJECT_KEYS.items():
         message = message.replace(f"`{option}`", key).replace(option, key)
+    for pattern, words in _PROJECT_PHRASES:
+        message = re.sub(pattern, words, message)
     return message
 
 
@@ -114,9 +140,80 @@ def _jsonable(value: Any) -> Any:
     return value
 
 
+@dataclass(frozen=True)
+class Prepared:
+    """A job checked before its analyses: the survey, and the context the run continues from.
+
+    ``findings`` are the errors and warnings of the pre-flight (each names the project key to
+    change); ``planned_skips`` the analyses that will not run, with their reasons. A run
+    refuses to start while ``errors`` is not empty.
+    """
+
+    survey: Any
+    context: Context
+    project: Project | None = None
+
+    @property
+    def findings(self) -> list[Finding]:
+        return list(self.context.findings)
+
+    @property
+    def errors(self) -> list[Finding]:
+        return [f for f in self.context.findings if f.level == "error"]
+
+    @property
+    def warnings(self) -> list[Finding]:
+        return [f for f in self.context.findings if f.level == "warning"]
+
+    @property
+    def planned_skips(self) -> dict[str, str]:
+        return dict(self.context.planned_skips)
+
+    def refuse(self) -> None:
+        """Raise :class:`PreflightError` listing every error, if there is one."""
+        if self.errors:
+            raise PreflightError(self.context.findings)
+
+
+def prepare(survey: Any, *, settings: dict[str, Any] | None = None,
+            hypotheses: dict[str, tuple[str, ...]] | None = None,
+            given: Collection[str] = (), demo: Any = None) -> Prepared:
+    """Run the pre-flight of every analysis a run of ``settings`` would make on ``survey``.
+
+    The steps that prepare the distance matrices run; every other step checks its inputs
+    (see :func:`~gradients.report._pipeline.preflight`). Nothing is raised for a problem of
+    the data: the problems are in :attr:`Prepared.findings`.
+    """
+    from .steps import STEPS
+
+    full = defaults()
+    full.update(settings or {})
+    ctx = Context(settings=full, hypotheses=dict(hypotheses or {}), survey=survey,
+                  seed=int(full["permutations.seed"]), n_resamples=int(full["permutations.count"]),
+                  given=frozenset(given))
+    ctx.results["demo"] = demo
+    preflight(ctx, STEPS)
+    return Prepared(survey, ctx)
+
+
+def prepare_run(project: Project) -> Prepared:
+    """Read a project's inputs and run the pre-flight of its whole job (no permutations).
+
+    ``gradients check`` prints what this finds; ``gradients run`` calls it and refuses on any
+    error before an analysis starts, so the check and the run cannot disagree. An error in
+    the input files themselves (which stops everything after it) is raised as InputError.
+    """
+    survey = read_project_survey(project)
+    check_hypotheses(project, survey)
+    prepared = prepare(survey, settings=project.settings, hypotheses=project.hypotheses,
+                       given=project.given)
+    return Prepared(prepared.survey, prepared.context, project)
+
+
 def analyse(survey: Any, *, settings: dict[str, Any] | None = None,
             hypotheses: dict[str, tuple[str, ...]] | None = None, title: str | None = None,
-            inputs: dict[str, Path] | None = None, demo: Any = None) -> Outcome:
+            inputs: dict[str, Path] | None = None, demo: Any = None,
+            prepared: Prepared | None = None) -> Outcome:
     """Run every analysis a project asks for on ``survey`` and collect the report content.
 
     Parameters
@@ -133,16 +230,24 @@ def analyse(survey: Any, *, settings: dict[str, Any] | None = None,
     demo : DemoScenario, optional
         The planted truth of a simulated survey; adds the section comparing it with what was
         found.
+    prepared : Prepared, optional
+        The result of :func:`prepare` (or :func:`prepare_run`) for these settings: the run
+        continues from its context instead of running the pre-flight again.
+
+    Raises
+    ------
+    PreflightError
+        The pre-flight found an error (before any analysis ran); it lists every error.
     """
     from .steps import STEPS, order_sections
 
-    full = defaults()
-    full.update(settings or {})
-    hypotheses = dict(hypotheses or {})
     start = time.perf_counter()
-    ctx = Context(settings=full, hypotheses=hypotheses, survey=survey,
-                  seed=int(full["permutations.seed"]), n_resamples=int(full["permutations.count"]))
-    ctx.results["demo"] = demo
+    if prepared is None:
+        prepared = prepare(survey, settings=settings, hypotheses=hypotheses, demo=demo)
+    ctx = prepared.context
+    full = ctx.settings
+    hypotheses = ctx.hypotheses
+    prepared.refuse()
     run_steps(ctx, STEPS)
     decisions = [str(d) for d in getattr(ctx.survey, "log", ())]
     decisions += [str(d) for d in ctx.results.get("input_decisions", [])]
@@ -180,6 +285,9 @@ def analyse(survey: Any, *, settings: dict[str, Any] | None = None,
         "skipped": [{"analysis": a, "reason": r} for a, r in ctx.skipped],
         "timings": {**ctx.timings, "analysis_total": round(time.perf_counter() - start, 3)},
     }
+    warned = [f.message for f in ctx.findings if f.level == "warning"]
+    if warned:
+        run_info["warnings"] = warned
     sites = pd.DataFrame(ctx.site_columns) if ctx.site_columns else None
     return Outcome(title=title or full["title"], sections=order_sections(ctx.sections),
                    methods=methods,
@@ -276,14 +384,15 @@ def run_project(project: str | Path | Project, *, out: str | Path | None = None,
         project = load_project(project)
     target = Path(out) if out is not None else Path(project["output.folder"])
     OutputFolder(target, force=force)  # refuse early, before minutes of computation
-    survey = read_project_survey(project)
-    check_hypotheses(project, survey)
+    prepared = prepare_run(project)
+    prepared.refuse()  # the same pre-flight as `gradients check`
     s = project.settings
     inputs = {"community": s["inputs.community"], "environment": s["inputs.environment"],
               "locations": s["inputs.locations"], "network": s["geography.network"]}
     if project.source is not None:
         inputs["project"] = project.source
-    outcome = analyse(survey, settings=s, hypotheses=project.hypotheses, inputs=inputs)
+    outcome = analyse(prepared.survey, settings=s, hypotheses=project.hypotheses,
+                      inputs=inputs, prepared=prepared)
     return write_report(outcome, target, force=force)
 
 

@@ -19,7 +19,7 @@ import pandas as pd
 from .._errors import InputError
 from ._safety import inside, neutralise_frame, sheet_name
 
-__all__ = ["FLOAT_FORMAT", "OutputFolder", "write_csv", "write_workbook"]
+__all__ = ["FLOAT_FORMAT", "OutputFolder", "remove_stale", "write_csv", "write_workbook"]
 
 #: Float format of every CSV table: 12 significant digits, so that the text does not depend on
 #: the last bits of floating-point sums.
@@ -101,11 +101,17 @@ class OutputFolder:
         self.force = force
         self.root: Path | None = None
         check_target(self.target, force=force)
+        #: Partial folders of runs that were killed before they finished, removed here.
+        self.removed = remove_stale(self.target)
+        check_writable(self.target)
 
     def __enter__(self) -> OutputFolder:
         parent = self.target.parent
-        parent.mkdir(parents=True, exist_ok=True)
-        self.root = Path(tempfile.mkdtemp(prefix=f".{self.target.name}.partial-", dir=parent))
+        try:
+            parent.mkdir(parents=True, exist_ok=True)
+            self.root = Path(tempfile.mkdtemp(prefix=_partial_prefix(self.target), dir=parent))
+        except OSError as exc:
+            raise _unwritable(self.target, exc) from None
         return self
 
     def __exit__(self, exc_type: type[BaseException] | None, exc: BaseException | None,
@@ -140,6 +146,81 @@ class OutputFolder:
             shutil.rmtree(old, ignore_errors=True)
         self.root = None
         return self.target
+
+
+def _partial_prefix(target: Path) -> str:
+    """Name prefix of the folder a run writes into: it carries the process ID of the run, so
+    that a later run can tell a folder left by a killed run from one still being written."""
+    return f".{target.name}.partial-{os.getpid()}-"
+
+
+def _alive(pid: int) -> bool:
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:  # another user's process
+        return True
+    return True
+
+
+def remove_stale(target: Path) -> list[Path]:
+    """Remove the partial folders beside ``target`` left by runs that were killed outright.
+
+    A run writes into ``.<name>.partial-<pid>-<random>`` and renames it into place when done;
+    a run stopped by Ctrl-C or SIGTERM removes it itself, but one killed outright (SIGKILL, a
+    power cut) cannot. Such a folder is removed when its process no longer exists; the folder
+    of a run still going is left alone. Returns the folders removed.
+    """
+    parent = target.parent
+    removed: list[Path] = []
+    if not parent.is_dir():
+        return removed
+    prefix = f".{target.name}.partial-"
+    try:
+        entries = list(parent.iterdir())
+    except OSError:
+        return removed
+    for entry in entries:
+        if not entry.name.startswith(prefix) or not entry.is_dir():
+            continue
+        pid_text = entry.name[len(prefix):].split("-", 1)[0]
+        if pid_text.isdigit() and _alive(int(pid_text)) and int(pid_text) != os.getpid():
+            continue
+        shutil.rmtree(entry, ignore_errors=True)
+        removed.append(entry)
+    return removed
+
+
+def _unwritable(target: Path, exc: OSError) -> InputError:
+    reason = exc.strerror or type(exc).__name__
+    return InputError(
+        f"The report folder {str(target)!r} cannot be written: {reason} "
+        f"({str(exc.filename or target.parent)!r}). This is a permission problem with the "
+        "folder, not with the data: choose a folder you can write to (--out, or `[output] "
+        "folder` in the project file), or change the folder's permissions.",
+        file=str(target))
+
+
+def check_writable(target: Path) -> None:
+    """Raise InputError when the folder that will hold ``target`` cannot be written.
+
+    Tried for real (a folder created and removed beside the target), before any analysis
+    runs, so that a permission problem is found in seconds rather than after the run.
+    """
+    parent = target.parent
+    existing = parent
+    while not existing.exists() and existing != existing.parent:
+        existing = existing.parent
+    if not existing.is_dir():
+        raise InputError(f"The report folder {str(target)!r} cannot be made: "
+                         f"{str(existing)!r} is a file, not a folder. Choose another folder "
+                         "(--out, or `[output] folder`).", file=str(target))
+    try:
+        probe = Path(tempfile.mkdtemp(prefix=f".{target.name}.probe-", dir=existing))
+    except OSError as exc:
+        raise _unwritable(target, exc) from None
+    probe.rmdir()
 
 
 def check_target(target: Path, *, force: bool) -> None:

@@ -92,13 +92,14 @@ def test_order_switch_and_clustering_keys(small) -> None:
     assert _section(off) is None
 
 
-def test_bad_designs_skip_the_section_with_the_reason(small) -> None:
+def test_bad_designs_are_refused_or_skip_the_clustering_with_the_reason(small) -> None:
+    from gradients.report._pipeline import PreflightError
+
     base = {"permutations.count": 19, "analyses.starts": 2}
-    outcome = analyse(small, settings={**base, "groups.terms": ("zone", "depth")},
-                      hypotheses={"metals": ("Cu",)})
-    assert _section(outcome) is None
-    reasons = dict(outcome.skipped)
-    assert "`groups.terms` names 'depth'" in reasons["groups"]
+    # a term the project names but the table does not have: refused before any analysis
+    with pytest.raises(PreflightError, match=r"`groups\.terms` names 'depth'"):
+        analyse(small, settings={**base, "groups.terms": ("zone", "depth")},
+                hypotheses={"metals": ("Cu",)})
     # Ward's method on Bray-Curtis: the clustering alone is skipped, with the reason
     ward = analyse(small, settings={**base, "groups.cluster": True, "groups.cluster_method":
                                     "ward"}, hypotheses={"metals": ("Cu",)})

@@ -100,14 +100,12 @@ def test_switched_off_leaves_no_trace_and_bad_keys_are_named() -> None:
     ctx.settings["analyses.ranking"] = False
     _run(ctx)
     assert not [s for s in ctx.sections if s.key == "ranking"] and "ranking" not in ctx.results
-    ctx = _context(variables=["Cu", "sand"])
-    _run(ctx)
-    (skip,) = [r for name, r in ctx.skipped if name == "ranking"]
-    assert "names part of the composition ['sand', 'silt', 'clay'] ('sand')" in skip
-    ctx = _context(variables=["Cu", "habitat"])
-    _run(ctx)
-    (skip,) = [r for name, r in ctx.skipped if name == "ranking"]
-    assert "'habitat', which are not numeric" in skip
+    # variables the project names that cannot be ranked: refused before any analysis runs
+    with pytest.raises(InputError, match=r"names part of the composition \['sand', 'silt', "
+                                         r"'clay'\] \('sand'\)"):
+        _run(_context(variables=["Cu", "sand"]))
+    with pytest.raises(InputError, match="'habitat', which are not numeric"):
+        _run(_context(variables=["Cu", "habitat"]))
     data = tomllib.loads(project_template())
     data["ranking"] = {"permutation": 5}
     with pytest.raises(InputError, match=r"Unknown key `permutation` in \[ranking\].*Did you "

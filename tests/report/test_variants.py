@@ -90,21 +90,22 @@ def test_switched_off_analyses_leave_no_trace(small, tmp_path: Path) -> None:
     assert outcome.skipped == [] and outcome.summary == []
 
 
-def test_sites_at_one_location_leave_space_out_not_the_hypotheses(small, tmp_path: Path) -> None:
-    # Every site at the same coordinates: distances in space are all zero, so space is left
-    # out with the reason, and the hypothesis tests still run.
+def test_sites_at_one_location_are_refused_before_the_analyses(small, tmp_path: Path) -> None:
+    # Every site at the same coordinates: distances in space are all zero. The locations are
+    # refused with the key to change, before any analysis runs (not a run without space).
     import geopandas as gpd
     from shapely.geometry import Point
+
+    from gradients.report._pipeline import PreflightError
 
     community, env, locations = small
     same = gpd.GeoDataFrame(index=locations.index, geometry=[Point(9.4, 61.1)] * len(locations),
                             crs=locations.crs)
     survey = Survey(community, env, same, censored="half-limit")
-    outcome = analyse(survey, settings={"permutations.count": 19, "analyses.starts": 2},
-                      hypotheses={"metals": ("Cu", "Zn", "Pb")})
-    keys = {s.key for s in outcome.sections}
-    assert {"verdicts", "mantel", "regression"} <= keys
-    assert "every site has the same location" in dict(outcome.skipped)["geography"]
+    with pytest.raises(PreflightError, match=r"Every site has the same location.*"
+                                             r"`\[inputs\] locations`"):
+        analyse(survey, settings={"permutations.count": 19, "analyses.starts": 2},
+                hypotheses={"metals": ("Cu", "Zn", "Pb")})
 
 
 def test_methods_name_gower_for_a_hypothesis_with_categories(small) -> None:

@@ -25,51 +25,59 @@ from .._demo_truth import planted_truth_step
 from .._model import Section
 from .._pipeline import Step
 from .community import community_step, environment_step, geography_step
-from .groups import groups_step
+from .groups import groups_check, groups_step
 from .matrix import (
     correlogram_step,
+    distance_decay_check,
     distance_decay_step,
     mantel_step,
     partial_mantel_step,
     regression_step,
+    spatial_check,
 )
 from .ordination import (
     biplot_step,
     factors_step,
+    ordination_check,
     ordination_step,
+    surfaces_check,
     surfaces_step,
+    vectors_check,
     vectors_step,
 )
-from .partition import partition_step
-from .ranking import ranking_step
+from .partition import partition_check, partition_step
+from .ranking import ranking_check, ranking_step
 from .soil import screening_step, texture_step, units_step
 from .verdicts import verdicts_step
 
 __all__ = ["SECTION_ORDER", "STEPS", "order_sections"]
 
-#: Every step of a run, in the order it runs.
+#: Every step of a run, in the order it runs. The steps marked ``prepares`` (cheap: the
+#: distance matrices and the soil and water tables) run in the pre-flight itself; every other
+#: step's ``check`` is its pre-flight (see :func:`~gradients.report._pipeline.preflight`).
 STEPS: tuple[Step, ...] = (
-    Step("community", community_step, required=True),
-    Step("units", units_step),
-    Step("screening", screening_step, required=True),  # before environment: mean_quotient
-    Step("environment", environment_step, required=True),
-    Step("geography", geography_step, required=True),
-    Step("texture", texture_step, required=True),
-    Step("ordination", ordination_step, required=True),
-    Step("vectors", vectors_step, "analyses.vectors"),
+    Step("community", community_step, required=True, prepares=True),
+    Step("units", units_step, prepares=True),
+    Step("screening", screening_step, required=True, prepares=True),  # before environment
+    Step("environment", environment_step, required=True, prepares=True),
+    Step("geography", geography_step, required=True, prepares=True),
+    Step("texture", texture_step, required=True, prepares=True),
+    Step("ordination", ordination_step, required=True, check=ordination_check),
+    Step("vectors", vectors_step, "analyses.vectors", check=vectors_check),
     Step("factors", factors_step, "analyses.factors"),
     Step("biplot", biplot_step),
     Step("mantel", mantel_step, "analyses.mantel"),
     Step("partial_mantel", partial_mantel_step, "analyses.partial_mantel"),
     Step("regression", regression_step, "analyses.regression"),
-    Step("correlogram", correlogram_step, "analyses.correlogram"),
-    Step("distance_decay", distance_decay_step, "analyses.distance_decay"),
-    Step("partition", partition_step, "analyses.partition"),
-    Step("ranking", ranking_step, "analyses.ranking"),
-    Step("groups", groups_step, "analyses.groups"),
+    Step("correlogram", correlogram_step, "analyses.correlogram", check=spatial_check),
+    Step("distance_decay", distance_decay_step, "analyses.distance_decay",
+         check=distance_decay_check),
+    Step("partition", partition_step, "analyses.partition", check=partition_check),
+    Step("ranking", ranking_step, "analyses.ranking", check=ranking_check),
+    Step("groups", groups_step, "analyses.groups", check=groups_check),
     Step("verdicts", verdicts_step, "analyses.verdicts"),
     Step("planted_truth", planted_truth_step),
-    Step("surfaces", surfaces_step, "analyses.surfaces"),
+    Step("surfaces", surfaces_step, "analyses.surfaces", check=surfaces_check),
 )
 
 #: Order of the sections in the report (steps run in dependency order, which differs).

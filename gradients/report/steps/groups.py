@@ -17,7 +17,7 @@ from .._model import Section
 from .._pipeline import Context
 from ._common import METRIC_NAMES, _add_figure, _fmt_p, _strata
 
-__all__ = ["class_variables", "groups_step"]
+__all__ = ["class_variables", "groups_check", "groups_step"]
 
 _CONTIGUITY = {
     "transect": "constrained to join only neighbouring sites along the site order",
@@ -281,6 +281,28 @@ def _clusters(ctx: Context, sec: Section, names: list[str]) -> None:
            else "")
         + f" (mean silhouette width {res.silhouette:.2f}; Rousseeuw 1987), and its cophenetic "
         f"correlation was {res.cophenetic_correlation:.2f} (Sokal & Rohlf 1962).")
+
+
+def groups_check(ctx: Context) -> None:
+    """The class variables and the terms name columns of the table, each with 2 classes or
+    more (and fewer classes than sites)."""
+    names = class_variables(ctx)
+    if not names:
+        return
+    env = ctx.survey.environment
+    terms = list(ctx.settings["groups.terms"]) or list(names)
+    missing = [c for c in _term_columns(terms) if c not in env.columns]
+    if missing:
+        raise InputError(f"`groups.terms` names {missing[0]!r}, which the environmental table "
+                         "does not have.", columns=missing)
+    for name in names:
+        k = env[name].nunique()
+        if k < 2 or k >= len(env):
+            how = "one class" if k < 2 else "a different class at every site"
+            raise InputError(
+                f"The class variable {name!r} has {how}, so its classes cannot be compared. "
+                "Remove it from `environment.factors` (or from `groups.terms`).",
+                columns=[name])
 
 
 def groups_step(ctx: Context) -> None:

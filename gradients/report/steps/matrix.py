@@ -13,8 +13,14 @@ from .._model import Section
 from .._pipeline import Context, Skip
 from ._common import _add_figure, _fmt_p, _predictors, _strata
 
-__all__ = ["correlogram_step", "distance_decay_step", "mantel_step", "partial_mantel_step",
-           "regression_step"]
+__all__ = ["correlogram_step", "distance_decay_check", "distance_decay_step", "mantel_step",
+           "partial_mantel_step", "regression_step", "spatial_check"]
+
+
+def spatial_check(ctx: Context) -> None:
+    """The analyses of space need the distance between sites."""
+    if ctx.results.get("geography") is None:
+        raise Skip("no site locations were given")
 
 
 def _spatial_kwargs(ctx: Context) -> dict[str, object]:
@@ -249,9 +255,7 @@ def correlogram_step(ctx: Context) -> None:
     from ...matrix import mantel_correlogram
     from ...plot import correlogram
 
-    geo = ctx.results.get("geography")
-    if geo is None:
-        raise Skip("no site locations were given")
+    geo = ctx.results["geography"]
     res = mantel_correlogram(ctx.results["community"], geo, n_resamples=ctx.n_resamples,
                              rng=ctx.rng("correlogram"), strata=_strata(ctx))
     ctx.results["correlogram"] = res
@@ -281,17 +285,21 @@ def correlogram_step(ctx: Context) -> None:
 BOUNDED = ("bray-curtis", "jaccard", "sorensen", "ruzicka", "kulczynski", "morisita-horn")
 
 
+def distance_decay_check(ctx: Context) -> None:
+    spatial_check(ctx)
+    d = ctx.results["community"]
+    if d.metric not in BOUNDED:
+        raise Skip(f"{d.metric} dissimilarities are not bounded by 1, so 1 - d is not a "
+                   "similarity; choose a bounded dissimilarity such as bray-curtis "
+                   "(`[community] dissimilarity`)")
+
+
 def distance_decay_step(ctx: Context) -> None:
     from ...matrix import distance_decay
     from ...plot import distance_decay as decay_figure
 
-    geo = ctx.results.get("geography")
-    if geo is None:
-        raise Skip("no site locations were given")
+    geo = ctx.results["geography"]
     d = ctx.results["community"]
-    if d.metric not in BOUNDED:
-        raise Skip(f"{d.metric} dissimilarities are not bounded by 1, so 1 - d is not a "
-                   "similarity; choose a bounded dissimilarity such as bray-curtis")
     res = distance_decay(d, geo, rng=ctx.rng("distance_decay"), n_resamples=ctx.n_resamples)
     ctx.results["distance_decay"] = res
     sec = Section("distance_decay", "Distance decay of community similarity")

@@ -12,7 +12,23 @@ from .._model import Section
 from .._pipeline import Context, Skip
 from ._common import METRIC_NAMES, _add_figure, _fmt_p, _numeric, _section, _strata
 
-__all__ = ["biplot_step", "factors_step", "ordination_step", "surfaces_step", "vectors_step"]
+__all__ = ["biplot_step", "factors_step", "ordination_check", "ordination_step",
+           "surfaces_check", "surfaces_step", "vectors_check", "vectors_step"]
+
+#: Fewest sites with values a smooth surface is fitted to (the rule of ``fit_surface``).
+SURFACE_MIN_SITES = 8
+
+
+def ordination_check(ctx: Context) -> None:
+    """Enough sites for the ordination in the dimensions asked for."""
+    n = ctx.results["community"].n
+    kind = ctx.settings["analyses.ordination"]
+    k = int(ctx.settings["analyses.dimensions"])
+    need = k + 2 if kind == "nmds" else k + 1
+    if n < need:
+        raise InputError(
+            f"{'NMDS' if kind == 'nmds' else 'PCoA'} in {k} dimensions needs at least {need} "
+            f"sites; the survey has {n}. Lower `[analyses] dimensions`, or add sites.")
 
 
 def ordination_step(ctx: Context) -> None:
@@ -62,13 +78,16 @@ def ordination_step(ctx: Context) -> None:
                     "dissimilarity")
 
 
+def vectors_check(ctx: Context) -> None:
+    if _numeric(ctx.results["environment"]).shape[1] == 0:
+        raise Skip("the environmental table has no numeric variables")
+
+
 def vectors_step(ctx: Context) -> None:
     from ...fitting import fit_vectors
 
     scores = ctx.results["ordination"].scores
     env = _numeric(ctx.results["environment"])
-    if env.shape[1] == 0:
-        raise Skip("the environmental table has no numeric variables")
     fit = fit_vectors(scores, env, n_resamples=ctx.n_resamples, rng=ctx.rng("vectors"),
                       strata=_strata(ctx))
     ctx.results["vectors"] = fit
@@ -170,6 +189,23 @@ def biplot_step(ctx: Context) -> None:
     sec.figures = dict(sorted(sec.figures.items(), key=lambda kv: kv[0] != "ordination_biplot"))
 
 
+def surfaces_check(ctx: Context) -> None:
+    """Every variable of `environment.surfaces` is numeric and has values at enough sites."""
+    env = ctx.results["environment"]
+    names = ctx.results["analysis_names"]
+    for v in ctx.settings["environment.surfaces"]:
+        column = names.get(v, v)
+        if column not in env.columns or not pd.api.types.is_numeric_dtype(env[column]):
+            raise InputError(f"`environment.surfaces` names {v!r}, which is not a numeric "
+                             "variable of the environmental table (a surface is fitted to "
+                             "numbers). Remove it from `[environment] surfaces`.", columns=[v])
+        n = int(env[column].notna().sum())
+        if n < SURFACE_MIN_SITES:
+            raise InputError(f"`environment.surfaces`: a surface needs at least "
+                             f"{SURFACE_MIN_SITES} sites with values; {v!r} has {n}. Remove it "
+                             "from `[environment] surfaces`.", columns=[v])
+
+
 def surfaces_step(ctx: Context) -> None:
     from ...fitting import fit_surface
     from ...plot import surface
@@ -195,9 +231,6 @@ def surfaces_step(ctx: Context) -> None:
     fits = {}
     for v in variables:
         column = names.get(v, v)
-        if column not in env.columns or not pd.api.types.is_numeric_dtype(env[column]):
-            raise InputError(f"`environment.surfaces` names {v!r}, which is not a numeric "
-                             "variable of the environmental table.", columns=[v])
         fit = fit_surface(scores, env[column], n_resamples=ctx.n_resamples,
                           rng=ctx.rng(f"surface:{v}"), strata=_strata(ctx), method="reml",
                           grid_size=150)

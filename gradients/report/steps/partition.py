@@ -34,7 +34,7 @@ from .._pipeline import Context, Skip
 from ._common import _add_figure, _fmt_p, _strata
 from .community import _hypothesis_table
 
-__all__ = ["partition_step"]
+__all__ = ["partition_check", "partition_step"]
 
 #: Most spatial eigenvectors drawn in the map figure.
 MAP_VECTORS = 4
@@ -152,6 +152,13 @@ def _chosen(result: Any, candidates: pd.DataFrame, what: str, notes: list[str]) 
     return candidates
 
 
+def partition_check(ctx: Context) -> None:
+    """Space and environment need hypotheses and the distance between sites."""
+    if ctx.hypotheses and ctx.results.get("geography") is None:
+        raise Skip("no site locations were given (`[inputs] locations`): without them space "
+                   "cannot be separated from the environment")
+
+
 def partition_step(ctx: Context) -> None:
     from ...partition import dbrda, forward_select, partition_variation, spatial_eigenvectors
     from ...plot import partition as fractions_figure
@@ -159,10 +166,7 @@ def partition_step(ctx: Context) -> None:
 
     if not ctx.hypotheses:
         return
-    geo = ctx.results.get("geography")
-    if geo is None:
-        raise Skip("no site locations were given (`[inputs] locations`): without them space "
-                   "cannot be separated from the environment")
+    geo = ctx.results["geography"]
     d = ctx.results["community"]
     n = d.n
     level = ctx.settings["partition.selection_level"]

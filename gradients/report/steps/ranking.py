@@ -19,7 +19,7 @@ from .._model import Section
 from .._pipeline import Context, Skip
 from ._common import _add_figure, _fmt_p, _numeric, _strata
 
-__all__ = ["ranking_environment", "ranking_step"]
+__all__ = ["ranking_check", "ranking_environment", "ranking_step"]
 
 #: Leading predictors drawn in the figure of turnover curves.
 CURVES_SHOWN = 6
@@ -112,13 +112,23 @@ def _summary(res, logs: dict[str, str]) -> str:
     return text + "."
 
 
+def ranking_check(ctx: Context) -> None:
+    """The candidates can be put in analysis units, and there are enough of them and of sites."""
+    from ...ranking._inputs import MIN_SITES
+
+    env, _ = ranking_environment(ctx)
+    if env.shape[1] < 2:
+        raise Skip("fewer than two numeric variables to rank (see `ranking.variables`)")
+    n = ctx.results["community"].n
+    if n < MIN_SITES:
+        raise Skip(f"ranking variables needs at least {MIN_SITES} sites; the survey has {n}")
+
+
 def ranking_step(ctx: Context) -> None:
     from ...plot import turnover_curves
     from ...ranking import rank_variables
 
     env, logs = ranking_environment(ctx)
-    if env.shape[1] < 2:
-        raise Skip("fewer than two numeric variables to rank (see `ranking.variables`)")
     n_perm = int(ctx.settings["ranking.permutations"])
     n_turn = int(ctx.settings["ranking.turnover_permutations"])
     res = rank_variables(ctx.results["community"], env, geo=ctx.results.get("geography"),
