@@ -111,9 +111,11 @@ def environment_step(ctx: Context) -> None:
     ctx.results["environment"] = _analysis_environment(ctx)
     logs = set(ctx.settings["environment.log10"])
     ctx.results["analysis_names"] = {c: (f"log10({c})" if c in logs else c) for c in env.columns}
-    distances = {}
+    distances, tables = {}, {}
     for name, variables in ctx.hypotheses.items():
-        distances[name] = environmental_distance(_hypothesis_table(ctx, variables))
+        tables[name] = _hypothesis_table(ctx, variables)
+        distances[name] = environmental_distance(tables[name])
+    ctx.results["hypothesis_tables"] = tables  # analysis units (the survey planner's model)
     cov = ctx.settings["design.covariables"]
     if cov:
         distances_cov = environmental_distance(_hypothesis_table(ctx, tuple(cov)))
