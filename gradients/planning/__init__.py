@@ -9,6 +9,7 @@ report, whose analysis steps it re-runs.
 """
 
 from ._assumed import assumed_model
+from ._folder import plan_project
 from ._model import GeneratingModelResult, fit_generating_model
 from ._power import SurveyPowerResult, survey_power
 
@@ -17,5 +18,6 @@ __all__ = [
     "SurveyPowerResult",
     "assumed_model",
     "fit_generating_model",
+    "plan_project",
     "survey_power",
 ]
