@@ -42,7 +42,8 @@ def binomial_interval(count: int, total: int) -> tuple[float, float]:
     from statsmodels.stats.proportion import proportion_confint
 
     lo, hi = proportion_confint(count, total, alpha=1 - INTERVAL_LEVEL, method=INTERVAL_METHOD)
-    return float(lo), float(hi)
+    share = count / total  # the interval holds the share (not only up to rounding)
+    return min(float(lo), share), max(float(hi), share)
 
 
 @dataclass(frozen=True)

@@ -92,8 +92,9 @@ def power_curve(
             sub = g[g["method"] == "subsample"].sort_values("n_sites")
             if len(sub):
                 ax.errorbar(sub["n_sites"].to_numpy(), sub["power"].to_numpy(),
-                            yerr=np.vstack([sub["power"] - sub["power_low"],
-                                            sub["power_high"] - sub["power"]]),
+                            yerr=np.clip(np.vstack([sub["power"] - sub["power_low"],
+                                                    sub["power_high"] - sub["power"]]),
+                                         0.0, None),
                             fmt="D", markersize=5, markerfacecolor=HOLLOW,
                             markeredgecolor=colour, ecolor=colour, elinewidth=0.8,
                             capsize=2, label=f"_gr:subsample-{h}")
