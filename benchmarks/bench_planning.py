@@ -4,7 +4,8 @@ Four sizes x 200 surveys x one hypothesis test (Mantel, 199 permutations), from 
 generating model (30 taxa, one gradient): ``survey_power`` (which also draws a null twin of
 every survey and analyses both through the report's steps, with early stopping) against a
 plain numpy loop that draws the same kind of surveys and runs the Mantel tests serially
-(Bray-Curtis by scipy, every permutation in full). Prints a Markdown table.
+(Bray-Curtis by scipy, every permutation in full). Prints a Markdown table and writes it to
+``benchmarks/results_planning.md``.
 
     python benchmarks/bench_planning.py [--surveys 200]
 """
@@ -13,9 +14,12 @@ from __future__ import annotations
 
 import argparse
 import os
+import platform
 import time
+from pathlib import Path
 
 import numpy as np
+from _machine import free_cores  # benchmarks/ is on the path when a script runs
 from scipy.spatial.distance import pdist
 
 SIZES = (20, 40, 60, 80)
@@ -65,6 +69,8 @@ def main() -> None:
     ap.add_argument("--permutations", type=int, default=199)
     args = ap.parse_args()
     model = assumed_model({"gradient": 0.12}, n_taxa=30)
+    before = os.getloadavg()[0]
+    free = free_cores()
     gradients.survey_power(model, n_sites=(10,), n_surveys=2, n_resamples=19,
                            tests=("mantel",), rng=0)  # compile the kernels first
     start = time.perf_counter()
@@ -75,21 +81,34 @@ def main() -> None:
     start = time.perf_counter()
     base = numpy_baseline(model, args.surveys, args.permutations, 2)
     plain = time.perf_counter() - start
-    print(f"cores: {os.cpu_count()}; {len(SIZES)} sizes x {args.surveys} surveys x Mantel "
-          f"({args.permutations} permutations)\n")
-    print("| n_sites | survey_power power | numpy power |")
-    print("|---|---|---|")
+    after = os.getloadavg()[0]
+    lines = [
+        "# Planning benchmark (`benchmarks/bench_planning.py`)",
+        "",
+        f"Machine: {platform.machine()}, {os.cpu_count()} cores shared with other work "
+        f"(1-minute load average {before:.1f} before, {after:.1f} after); two threads ran "
+        f"plain BLAS products {free:.2f}x as fast as one at the start (2.00 = both cores "
+        f"free). {len(SIZES)} sizes x {args.surveys} surveys x one Mantel test "
+        f"({args.permutations} permutations), 30 taxa, one gradient of strength 0.12.",
+        "",
+        "| n_sites | survey_power power | plain numpy power |",
+        "|---:|---:|---:|",
+    ]
     for n in SIZES:
         row = res.table[(res.table["n_sites"] == n) & (res.table["hypothesis"] == "gradient")]
-        print(f"| {n} | {float(row['power'].iloc[0]):.3f} | {base[n]:.3f} |")
-    print()
-    print("| run | seconds |")
-    print("|---|---|")
-    print(f"| survey_power (surveys and their null twins, report steps, early stop) | "
-          f"{ours:.1f} |")
-    print(f"| plain numpy loop (surveys only, every permutation) | {plain:.1f} |")
-    print(f"| ratio numpy / survey_power | {plain / ours:.2f} |")
-
+        lines.append(f"| {n} | {float(row['power'].iloc[0]):.3f} | {base[n]:.3f} |")
+    lines += [
+        "",
+        "| run | seconds |",
+        "|---|---:|",
+        f"| `survey_power` (every survey and its null twin, through the report's steps, "
+        f"early stopping, `n_jobs=-1`) | {ours:.1f} |",
+        f"| plain numpy loop (the surveys only, every permutation, serial) | {plain:.1f} |",
+        f"| ratio plain / `survey_power` | {plain / ours:.2f} |",
+    ]
+    text = "\n".join(lines) + "\n"
+    print(text)
+    Path(__file__).with_name("results_planning.md").write_text(text, encoding="utf-8")
 
 if __name__ == "__main__":
     main()

@@ -7,8 +7,6 @@ Artists carry ``_gr:`` labels (hidden from legends) for programs and tests: ``_g
 
 from __future__ import annotations
 
-from typing import TYPE_CHECKING
-
 import numpy as np
 from matplotlib.axes import Axes
 from matplotlib.lines import Line2D
@@ -17,16 +15,13 @@ from .._errors import InputError, format_items
 from ._kit import canvas, check_figsize, frame, place_legend, set_title, text
 from ._style import HOLLOW, INK, MUTED, PALETTE, SIZES
 
-if TYPE_CHECKING:
-    from ..planning import SurveyPowerResult
-
 __all__ = ["power_curve"]
 
 _COLUMNS = ["hypothesis", "test", "n_sites", "method", "power", "power_low", "power_high"]
 
 
 def power_curve(
-    result: SurveyPowerResult,
+    result: object,
     *,
     test: str | None = None,
     title: str | None = None,
@@ -38,7 +33,8 @@ def power_curve(
     Parameters
     ----------
     result : SurveyPowerResult
-        The result of :func:`~gradients.survey_power`.
+        The result of :func:`~gradients.survey_power` (the planning stage comes after this
+        one, so the figure reads its ``table``, ``target_power`` and ``alpha`` by name).
     test : str, optional
         Which test to draw (default: the first of ``result.tests``).
     title : str, optional

@@ -48,9 +48,9 @@ def test_plan_keys(tmp_path: Path) -> None:
 
     base = {"inputs": {"community": __file__, "environment": __file__}}
     # docs/project-file.md: [plan] sites is a list of whole numbers
-    with pytest.raises(InputError, match="`plan.sites` must be a list of whole numbers"):
+    with pytest.raises(InputError, match=r"`plan\.sites` must be a list of whole numbers"):
         project_from_dict({**base, "plan": {"sites": ["many"]}})
-    with pytest.raises(InputError, match="Unknown key `site` in \\[plan\\]"):
+    with pytest.raises(InputError, match=r"Unknown key `site` in \[plan\]"):
         project_from_dict({**base, "plan": {"site": [20]}})
     p = project_from_dict({**base, "plan": {"sites": 30, "target": 0.9}})
     assert p["plan.sites"] == (30,) and p["plan.target"] == 0.9

@@ -16,9 +16,9 @@ def test_null_model_detects_at_the_nominal_level():
     # Theory (common practice, Phipson & Smyth 2010): with no effect and sites exchangeable,
     # a permutation p-value (b + 1)/(P + 1) with alpha (P + 1) whole is at most alpha with
     # probability exactly alpha; permuting the residuals of the reduced model, as the partial
-    # Mantel test does, holds the level closely (Legendre 2000). 39 permutations, alpha 0.05: the detections of 120 surveys
-    # and of their 120 null twins are Binomial(240, 0.05); the count must lie in its central
-    # 99.9 % interval (scipy).
+    # Mantel test does, holds the level closely (Legendre 2000). 39 permutations, alpha 0.05:
+    # the detections of 120 surveys and of their 120 null twins are Binomial(240, 0.05); the
+    # count must lie in its central 99.9 % interval (scipy).
     model = assumed_model({"g": 0.0, "h": 0.0}, n_taxa=12, spatial_range=0.0)
     res = survey_power(model, n_sites=(12,), n_surveys=120, n_resamples=39,
                        tests=("partial_mantel",), rng=11)
