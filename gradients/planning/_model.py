@@ -19,6 +19,7 @@ import pandas as pd
 
 from .._errors import InputError, format_items
 from .._result import ResultMixin
+from .._validation import RNGLike, check_rng
 
 __all__ = ["MIN_OCCUPIED", "MIN_PILOT_SITES", "GeneratingModelResult", "fit_generating_model"]
 
@@ -193,38 +194,82 @@ def _fit_taxon(y: np.ndarray, x: np.ndarray) -> tuple[np.ndarray, np.ndarray, fl
     return np.asarray(nb.params), cov, alpha
 
 
-def _shrink_factor(b: np.ndarray, cov: np.ndarray) -> float:
-    """Van Houwelingen & le Cessie's (1990) heuristic shrinkage ``max(0, 1 - k / W)`` of one
-    group's ``k`` coefficients, ``W`` their Wald statistic."""
+def _wald(beta: np.ndarray, cov: np.ndarray, idx: np.ndarray) -> float:
+    """Wald statistic of the coefficients ``idx`` (0 when it cannot be computed)."""
+    b = beta[idx]
     try:
-        w = float(b @ np.linalg.solve(cov, b))
+        w = float(b @ np.linalg.solve(cov[np.ix_(idx, idx)], b))
     except np.linalg.LinAlgError:
         return 0.0
-    if not np.isfinite(w) or w <= 0:
-        return 0.0
-    return max(0.0, 1.0 - len(b) / w)
+    return w if np.isfinite(w) and w > 0 else 0.0
+
+
+def _group_index(cols: list[int], p: int) -> np.ndarray:
+    """Columns of the design (intercept, linear, quadratic) holding one group's terms."""
+    c = np.asarray(cols)
+    return np.r_[c + 1, c + 1 + p]
+
+
+def _fit_all(counts: np.ndarray, z: np.ndarray, min_occupied: int) -> list[Any]:
+    n = counts.shape[0]
+    x = _design(z)
+    fits = []
+    for k in range(counts.shape[1]):
+        y = counts[:, k].astype(float)
+        ok = np.count_nonzero(y) >= max(min_occupied, 1) and n > x.shape[1]
+        fits.append(_fit_taxon(y, x) if ok else None)
+    return fits
+
+
+def _null_wald(counts: np.ndarray, z: np.ndarray, groups: list[list[int]], min_occupied: int,
+               order: np.ndarray, rng: np.random.Generator, repeats: int) -> np.ndarray:
+    """Mean Wald statistic per coefficient of each group when it has no effect: the group's
+    predictors permuted among the sites (``order``: sites sorted by label) and every taxon
+    refitted, ``repeats`` times."""
+    p = z.shape[1]
+    out = np.ones(len(groups))
+    for gi, cols in enumerate(groups):
+        total, dof = 0.0, 0
+        for _ in range(repeats):
+            zp = z.copy()
+            perm = np.empty(len(order), dtype=np.intp)
+            perm[order] = order[rng.permutation(len(order))]
+            zp[:, cols] = z[perm][:, cols]
+            idx = _group_index(cols, p)
+            for fit in _fit_all(counts, zp, min_occupied):
+                if fit is not None:
+                    total += _wald(fit[0], fit[1], idx)
+                    dof += len(idx)
+        out[gi] = max(1.0, total / dof) if dof else 1.0
+    return out
 
 
 def fit_counts(counts: np.ndarray, z: np.ndarray, groups: list[list[int]], *,
-               min_occupied: int = MIN_OCCUPIED) -> dict[str, np.ndarray]:
+               min_occupied: int = MIN_OCCUPIED, order: np.ndarray | None = None,
+               rng: np.random.Generator | None = None,
+               calibration: int = 2) -> dict[str, np.ndarray]:
     """Fit the generating model's coefficients to a count table ``(n_sites, n_taxa)``.
 
     ``z`` holds the standardised predictors and ``groups`` the predictor columns of each
-    group. Returns intercepts, linear and quadratic coefficients, dispersions, shrinkage
-    factors, fitted flags and caps.
+    group. Each group's coefficients of each taxon are multiplied by ``max(0, 1 - c k / W)``:
+    ``W`` their Wald statistic, ``k`` their number and ``c`` the mean Wald statistic per
+    coefficient with the group's predictors permuted among sites (``calibration`` times; at
+    least 1, the heuristic's own value). Returns intercepts, linear and quadratic
+    coefficients, dispersions, shrinkage factors, null inflation ``c``, fitted flags, caps.
     """
     n, m = counts.shape
     p = z.shape[1]
-    x = _design(z)
+    order = np.arange(n) if order is None else np.asarray(order)
+    rng = np.random.default_rng(0) if rng is None else rng
+    inflation = (_null_wald(counts, z, groups, min_occupied, order, rng, calibration)
+                 if calibration else np.ones(len(groups)))
     out = {"intercept": np.zeros(m), "linear": np.zeros((m, p)), "quadratic": np.zeros((m, p)),
            "dispersion": np.zeros(m), "shrinkage": np.zeros((m, len(groups))),
-           "fitted": np.zeros(m, dtype=bool), "cap": np.zeros(m)}
-    for k in range(m):
+           "fitted": np.zeros(m, dtype=bool), "cap": np.zeros(m), "inflation": inflation}
+    for k, fit in enumerate(_fit_all(counts, z, min_occupied)):
         y = counts[:, k].astype(float)
         mean = max(float(y.mean()), 1e-3)
         out["cap"][k] = max(2.0 * float(y.max()), 1.0)
-        occupied = int(np.count_nonzero(y))
-        fit = _fit_taxon(y, x) if occupied >= max(min_occupied, 1) and n > x.shape[1] else None
         if fit is None:
             out["intercept"][k] = np.log(mean)
             out["dispersion"][k] = _dispersion_moments(y, np.full(n, mean))
@@ -232,8 +277,9 @@ def fit_counts(counts: np.ndarray, z: np.ndarray, groups: list[list[int]], *,
         beta, cov, alpha = fit
         lin, quad = beta[1:1 + p].copy(), beta[1 + p:].copy()
         for gi, cols in enumerate(groups):
-            idx = np.r_[np.asarray(cols) + 1, np.asarray(cols) + 1 + p]
-            f = _shrink_factor(beta[idx], cov[np.ix_(idx, idx)])
+            idx = _group_index(cols, p)
+            w = _wald(beta, cov, idx)
+            f = max(0.0, 1.0 - inflation[gi] * len(idx) / w) if w > 0 else 0.0
             out["shrinkage"][k, gi] = f
             lin[cols] *= f
             quad[cols] *= f
@@ -291,6 +337,7 @@ def fit_generating_model(
     settings: Mapping[str, Any] | None = None,
     jitter: float = 0.1,
     min_occupied: int = MIN_OCCUPIED,
+    rng: RNGLike = None,
 ) -> GeneratingModelResult:
     """Fit the generating model of a survey plan to a pilot survey.
 
@@ -308,6 +355,9 @@ def fit_generating_model(
         (and of the median distance to the nearest pilot site).
     min_occupied : int, default 5
         Taxa found at fewer pilot sites are given no response to the predictors.
+    rng : int, numpy.random.Generator or None
+        Source of the permutations that calibrate the shrinkage. When `rng` is None, a new
+        `numpy.random.Generator` is created using entropy from the operating system.
 
     Returns
     -------
@@ -323,10 +373,14 @@ def fit_generating_model(
     Trivedi [2]_, the GLM is refitted with it, and it is estimated again from the final means.
     A pilot of a few dozen sites cannot pin down a dozen coefficients per taxon, and chance
     fits would plant effects that are not there; so each hypothesis' coefficients of each taxon
-    are shrunk towards no effect by the heuristic factor ``max(0, 1 - k/W)`` [3]_ (``W`` the
+    are shrunk towards no effect by the heuristic factor ``max(0, 1 - c k/W)`` [3]_ (``W`` the
     Wald statistic of its ``k`` coefficients), and the intercept is then set so that the
-    taxon's mean count over the pilot sites is kept. Taxa found at fewer than
-    ``min_occupied`` sites, and fits that fail, get no response (their mean and spread only).
+    taxon's mean count over the pilot sites is kept. The heuristic takes ``c = 1``, the mean of
+    ``W / k`` under no effect in large samples; with few sites and many terms the Wald
+    statistic runs larger, so ``c`` is estimated: the mean of ``W / k`` over all taxa refitted
+    with the hypothesis' predictors permuted among the sites (twice; never below 1). Taxa
+    found at fewer than ``min_occupied`` sites, and fits that fail, get no response (their
+    mean and spread only).
 
     References
     ----------
@@ -377,20 +431,27 @@ def fit_generating_model(
     scale = raw.std(axis=0)
     scale[scale == 0] = 1.0
     z = (raw - centre) / scale
-    order = [c for cols in groups.values() for c in cols]
+    names = [c for cols in groups.values() for c in cols]
     col_groups, start = [], 0
     for cols in groups.values():
         col_groups.append(list(range(start, start + len(cols))))
         start += len(cols)
-    coef = fit_counts(counts, z, col_groups, min_occupied=min_occupied)
+    from ..permutation import site_ranks
+
+    order = np.argsort(site_ranks(community.index))  # permutations over label-sorted sites
+    coef = fit_counts(counts, z, col_groups, min_occupied=min_occupied, order=order,
+                      rng=check_rng(rng))
     n_fit = int(coef["fitted"].sum())
     notes.append(
         f"Estimated from the {n}-site pilot: each of {n_fit} of {len(community.columns)} taxa "
         "was fitted by a negative binomial GLM (statsmodels) with a linear and a quadratic term "
-        f"in each of the {len(order)} standardised predictors; each hypothesis' coefficients "
-        "were shrunk towards no effect by the factor max(0, 1 - k/W) of Van Houwelingen & le "
-        "Cessie (1990) and the intercept reset to keep the taxon's mean count; the "
-        "overdispersion of each taxon came from its fit (Cameron & Trivedi 1990).")
+        f"in each of the {len(names)} standardised predictors; each hypothesis' coefficients "
+        "were shrunk towards no effect by the factor max(0, 1 - c k/W) of Van Houwelingen & le "
+        "Cessie (1990), with c the mean Wald statistic per coefficient when the hypothesis' "
+        "predictors were permuted among the sites ("
+        + ", ".join(f"{g} {c:.2f}" for g, c in zip(groups, coef["inflation"], strict=True))
+        + "), and the intercept reset to keep the taxon's mean count; the overdispersion of "
+        "each taxon came from its fit (Cameron & Trivedi 1990).")
     rare = len(community.columns) - n_fit
     if rare:
         notes.append(f"{rare} taxa were too rare to fit (found at fewer than {min_occupied} "
@@ -402,7 +463,7 @@ def fit_generating_model(
                  "community structure in space beyond what the environment carries is not "
                  "modelled.")
     return GeneratingModelResult(
-        taxa=tuple(map(str, community.columns)), predictors=tuple(order), groups=groups,
+        taxa=tuple(map(str, community.columns)), predictors=tuple(names), groups=groups,
         intercept=coef["intercept"], linear=coef["linear"], quadratic=coef["quadratic"],
         dispersion=coef["dispersion"], shrinkage=coef["shrinkage"], fitted=coef["fitted"],
         centre=centre, scale=scale, cap=coef["cap"], source="pilot", n_pilot=n,

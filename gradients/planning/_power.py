@@ -34,7 +34,7 @@ INTERVAL_LEVEL = 0.95
 #: interval, which keeps its coverage near the nominal level for shares near 0 or 1.
 INTERVAL_METHOD = "wilson"
 
-_SIM, _SUB, _BOOT = 0, 1, 2  # kinds of survey, in their seeds' spawn keys
+_SIM, _SUB, _BOOT, _FIT = 0, 1, 2, 3  # kinds of draw, in their seeds' spawn keys
 
 
 def binomial_interval(count: int, total: int) -> tuple[float, float]:
@@ -261,9 +261,11 @@ def survey_power(
     else:
         if hypotheses is None:
             raise InputError("`hypotheses` is required with a pilot survey: name -> variables.")
-        model = fit_generating_model(pilot, hypotheses, settings=settings, jitter=jitter)
+        root = seed_sequence(rng)
+        model = fit_generating_model(pilot, hypotheses, settings=settings, jitter=jitter,
+                                     rng=np.random.default_rng(_child(root, _FIT)))
         survey = pilot
-    root = seed_sequence(rng)
+    root = seed_sequence(rng) if survey is None else root
     sub_sizes = [n for n in sizes if survey is not None and subsample and n < model.n_pilot]
     total = len(sizes) * n_surveys * (1 + n_bootstrap) + len(sub_sizes) * n_surveys
     reporter = current_reporter()
@@ -355,7 +357,8 @@ def _bootstrap(survey: Any, model: GeneratingModelResult, hypotheses: Any, setti
             loc.index = labels
         resample = SimpleNamespace(community=frames["community"],
                                    environment=frames["environment"], locations=loc)
-        refit = fit_generating_model(resample, hypotheses, settings=settings, jitter=jitter)
+        refit = fit_generating_model(resample, hypotheses, settings=settings, jitter=jitter,
+                                     rng=np.random.default_rng(_child(root, _FIT, b)))
         for n in sizes:
             hits = []
             for i in range(n_surveys):

@@ -66,8 +66,15 @@ class PilotSites:
     @classmethod
     def from_pilot(cls, environment: pd.DataFrame, ctx: Any, settings: dict[str, Any], *,
                    jitter: float) -> PilotSites:
+        from ..permutation import site_ranks
+
         points, lines = None, None
         locations = ctx.survey.locations
+        # sites in label order, so that draws do not depend on the row order of the pilot
+        order = np.argsort(site_ranks(environment.index))
+        environment = environment.iloc[order]
+        if locations is not None:
+            locations = locations.loc[environment.index]
         step = 0.0
         if locations is not None:
             points, lines = _projected(locations, settings)
