@@ -141,7 +141,8 @@ def plan_outcome(result: SurveyPowerResult, *, title: str, settings: dict[str, A
     run_info = {
         "software": software_versions(),
         "command": ["gradients", "plan"],
-        "parameters": _jsonable(settings),
+        # the page's summary reads `permutations.count`: in a plan, the permutations per test
+        "parameters": _jsonable({**settings, "permutations.count": result.n_resamples}),
         "hypotheses": _jsonable(hypotheses),
         "seed": settings.get("permutations.seed"),
         "permutations": result.n_resamples,

@@ -12,7 +12,7 @@ from gradients import InputError, assumed_model, plot, survey_power
 def result():
     model = assumed_model({"copper": 0.4, "depth": 0.0}, n_taxa=10)
     return survey_power(model, n_sites=(8, 16), n_surveys=5, n_resamples=19,
-                        tests=("partial_mantel", "mantel"), rng=2)
+                        tests=("partial_mantel", "mantel", "vectors"), rng=2)
 
 
 def test_lines_follow_the_table(result):
@@ -29,8 +29,17 @@ def test_lines_follow_the_table(result):
     assert {c.get_label() for c in ax.collections} >= {"_gr:band-copper", "_gr:band-depth"}
 
 
+def test_one_figure_per_test(result):
+    # the vector-fit test ran too (PCoA of each survey): its rows are drawn on their own
+    ax = plot.power_curve(result, test="vectors")
+    x, y = {ln.get_label(): ln for ln in ax.get_lines()}["_gr:power-copper"].get_data()
+    rows = result.table[(result.table["test"] == "vectors")
+                        & (result.table["hypothesis"] == "copper")].sort_values("n_sites")
+    np.testing.assert_array_equal(y, rows["power"].to_numpy())
+
+
 def test_unknown_test_is_refused(result):
     with pytest.raises(InputError, match="`test` must be one of the tests of the plan"):
-        plot.power_curve(result, test="vectors")
+        plot.power_curve(result, test="permanova")
     with pytest.raises(InputError, match="must be a pandas DataFrame"):
         plot.power_curve(object())
