@@ -94,7 +94,7 @@ def plan_outcome(result: SurveyPowerResult, *, title: str, settings: dict[str, A
     from ..report._model import Outcome, Section
     from ..report._run import _jsonable, software_versions
 
-    table = result.table.set_index(["hypothesis", "test", "n_sites", "method"])
+    table = result.table.set_index("hypothesis")  # one index column: readable in the page
     needed = result.smallest_n
     sec = Section("plan", "How many sites it takes")
     for (h, t), row in needed.iterrows():
@@ -105,13 +105,14 @@ def plan_outcome(result: SurveyPowerResult, *, title: str, settings: dict[str, A
         else:
             sec.paragraphs.append(
                 f"{h} ({t.replace('_', ' ')}): no planned size reaches "
-                f"{_fmt_share(result.target_power)}; with {row['largest_simulated']} sites "
+                f"{_fmt_share(result.target_power)}; with {int(row['largest_simulated'])} sites "
                 f"the power is {_fmt_share(row['power_at_largest'])}.")
     sec.paragraphs.append(HONESTY)
     sec.tables["power"] = table
-    sec.tables["sites_needed"] = needed
+    sec.tables["sites_needed"] = needed.reset_index("test")
     sec.shown += ["power", "sites_needed"]
-    sec.display["power"] = ["power", "power_low", "power_high", "false_detection"] + (
+    sec.display["power"] = ["test", "n_sites", "method", "power", "power_low", "power_high",
+                            "false_detection"] + (
         ["bootstrap_low", "bootstrap_high"] if "bootstrap_low" in table.columns else [])
     for t in result.tests:
         fig = power_curve(result, test=t).get_figure(root=True)
@@ -130,7 +131,7 @@ def plan_outcome(result: SurveyPowerResult, *, title: str, settings: dict[str, A
         "The parameters the surveys were simulated from: for each taxon and predictor the "
         "linear and quadratic coefficients of its log mean count (after shrinkage towards no "
         "effect), and for each taxon its intercept, overdispersion and the largest mean drawn.")
-    model.tables["model_coefficients"] = result.model.table.set_index(["taxon", "predictor"])
+    model.tables["model_coefficients"] = result.model.table.set_index("taxon")
     model.tables["model_taxa"] = result.model.taxa_table
     model.shown.append("model_taxa")
     if result.bootstrap is not None:

@@ -49,7 +49,8 @@ def power_curve(
     matplotlib.axes.Axes
         Each hypothesis' simulated power as a line with points (``_gr:power-<h>``) over a
         shaded 95 % interval (``_gr:band-<h>``); power from subsamples of the pilot as hollow
-        diamonds (``_gr:subsample-<h>``); the target power as a dashed line (``_gr:target``)
+        diamonds with their intervals (``_gr:subsample-<h>``), set a little to the right of
+        the simulated point of the same size; the target power as a dashed line (``_gr:target``)
         and the level ``alpha`` as a dotted one (``_gr:alpha``), the power a test has when
         there is nothing to find.
 
@@ -73,6 +74,8 @@ def power_curve(
     target = float(getattr(result, "target_power", 0.8))
     alpha = float(getattr(result, "alpha", 0.05))
     tb = tb[tb["test"] == test]
+    # subsamples are drawn a little to the right of the simulated points at the same size
+    nudge = 0.012 * max(float(tb["n_sites"].max() - tb["n_sites"].min()), 1.0)
     with canvas(ax, check_figsize(figsize, (5.8, 4.0))) as ax:
         handles = []
         for i, (h, g) in enumerate(tb.groupby("hypothesis", sort=False)):
@@ -87,7 +90,7 @@ def power_curve(
                                   markersize=4.5, label=text(h, 30)))
             sub = g[g["method"] == "subsample"].sort_values("n_sites")
             if len(sub):
-                ax.errorbar(sub["n_sites"].to_numpy(), sub["power"].to_numpy(),
+                ax.errorbar(sub["n_sites"].to_numpy() + nudge, sub["power"].to_numpy(),
                             yerr=np.clip(np.vstack([sub["power"] - sub["power_low"],
                                                     sub["power_high"] - sub["power"]]),
                                          0.0, None),
