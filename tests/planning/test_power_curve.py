@@ -35,6 +35,7 @@ def test_one_figure_per_test(result):
     x, y = {ln.get_label(): ln for ln in ax.get_lines()}["_gr:power-copper"].get_data()
     rows = result.table[(result.table["test"] == "vectors")
                         & (result.table["hypothesis"] == "copper")].sort_values("n_sites")
+    np.testing.assert_array_equal(x, rows["n_sites"].to_numpy())
     np.testing.assert_array_equal(y, rows["power"].to_numpy())
 
 
