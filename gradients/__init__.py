@@ -104,6 +104,13 @@ _EXPORTS: dict[str, str] = {
     "init_project": "report",
     "run_project": "report",
     "run_demo": "report",
+    # planning
+    "survey_power": "planning",
+    "SurveyPowerResult": "planning",
+    "fit_generating_model": "planning",
+    "assumed_model": "planning",
+    "GeneratingModelResult": "planning",
+    "plan_project": "planning",
 }
 
 #: Subpackages reached as attributes (``gradients.plot.biplot(...)``), loaded on first use.

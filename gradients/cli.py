@@ -6,6 +6,7 @@
     gradients init DIR
     gradients check FILE | --community C --environment E [--locations L] [--site-column S]
     gradients run FILE [--out DIR] [--force]
+    gradients plan FILE [--sites 20,40,60,80] [--surveys N] [--out DIR] [--force]
     gradients --version
 
 The command line only parses arguments and calls :mod:`gradients.report`. Problems with the
@@ -91,6 +92,19 @@ def _parser() -> argparse.ArgumentParser:
                      help="report folder (default: `output.folder` of the project file)")
     run.add_argument("--force", action="store_true",
                      help="replace an existing report folder (only once the new one is done)")
+    plan = sub.add_parser("plan", help="how many sites a survey needs, by simulation",
+                          description="Fit a generating model to the project's survey (the "
+                                      "pilot), simulate surveys of each number of sites, and "
+                                      "write the power of each hypothesis test to a folder.")
+    plan.add_argument("project", metavar="FILE", help="project file (TOML)")
+    plan.add_argument("--sites", default=None, metavar="N,N,...",
+                      help="numbers of sites, e.g. 20,40,60,80 (default: `plan.sites`)")
+    plan.add_argument("--surveys", type=int, default=None, metavar="N",
+                      help="surveys per number of sites (default: `plan.surveys`)")
+    plan.add_argument("--out", default=None, metavar="DIR",
+                      help="folder to write (default: `plan.folder` of the project file)")
+    plan.add_argument("--force", action="store_true",
+                      help="replace an existing plan folder (only once the new one is done)")
     return p
 
 
@@ -157,7 +171,32 @@ def _cmd_run(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
-COMMANDS = {"demo": _cmd_demo, "init": _cmd_init, "check": _cmd_check, "run": _cmd_run}
+def _site_counts(text: str | None) -> tuple[int, ...] | None:
+    if text is None:
+        return None
+    try:
+        return tuple(int(v) for v in text.replace(" ", "").split(",") if v)
+    except ValueError:
+        raise InputError(f"--sites must be whole numbers separated by commas, e.g. "
+                         f"20,40,60,80; got {text!r}.") from None
+
+
+def _cmd_plan(args: argparse.Namespace) -> int:
+    from .planning import plan_project
+
+    if args.surveys is not None and args.surveys < 1:
+        raise InputError(f"--surveys must be a positive whole number; got {args.surveys}.")
+    start = time.perf_counter()
+    with _progress():
+        folder = plan_project(args.project, sites=_site_counts(args.sites), out=args.out,
+                              force=args.force, surveys=args.surveys)
+    print(f"Survey plan written to {folder} in {time.perf_counter() - start:.0f} s.")
+    print(f"Open {folder / 'report.html'} in a web browser.")
+    return EXIT_OK
+
+
+COMMANDS = {"demo": _cmd_demo, "init": _cmd_init, "check": _cmd_check, "run": _cmd_run,
+            "plan": _cmd_plan}
 
 
 def main(argv: Sequence[str] | None = None) -> int:

@@ -21,6 +21,7 @@ draws its figures with these same functions.
   bar), :func:`spatial_eigenvector_map` (spatial eigenvectors over the sites).
 - Soil and water: :func:`texture_triangle` (sites on the soil texture triangle over the
   class boundaries); :func:`quotient_map` (sites on a map by exceedance of screening values).
+- Planning: :func:`power_curve` (power of a survey plan against the number of sites).
 - :func:`house_style`: the house style as a ``with`` block, to restyle or save a figure.
 
 No pyplot is used: figures are built on :class:`matplotlib.figure.Figure` directly, so nothing
@@ -33,6 +34,7 @@ from ._hypotheses import hypotheses
 from ._matrix import correlogram, distance_decay
 from ._ordination import arrows, centroids, legend, sites, taxa
 from ._partition import partition, spatial_eigenvector_map
+from ._planning import power_curve
 from ._ranking import ranking, turnover_curves
 from ._soil import quotient_map, texture_triangle
 from ._style import house_style
@@ -50,6 +52,7 @@ __all__ = [
     "hypotheses",
     "legend",
     "partition",
+    "power_curve",
     "quotient_map",
     "ranking",
     "shepard",

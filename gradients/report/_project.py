@@ -47,7 +47,7 @@ class Key:
     """One key of the project file: its type, default, allowed values and meaning."""
 
     kind: str  # "str", "path", "int", "float", "number", "bool", "names", "choice",
-    # "compositions", "mapping"
+    # "compositions", "mapping", "counts"
     default: Any = None
     help: str = ""
     choices: tuple[str, ...] = ()
@@ -221,6 +221,24 @@ SCHEMA: dict[str, dict[str, Key]] = {
         "seed": Key("int", 1, "Seed of the random number generator: the same seed gives the "
                     "same p-values and byte-identical tables.", minimum=0),
     },
+    "plan": {  # `gradients plan`: survey power by simulation (gradients/planning)
+        "sites": Key("counts", (20, 40, 60, 80), "Numbers of sites of the planned surveys "
+                     "(each at least 5), e.g. [20, 40, 60, 80]."),
+        "surveys": Key("int", 200, "Surveys simulated per number of sites.", minimum=1),
+        "permutations": Key("int", 199, "Permutations of each test in each simulated survey.",
+                            minimum=1),
+        "target": Key("float", 0.8, "Power the smallest number of sites is sought for."),
+        "level": Key("float", 0.05, "Significance level at which a test detects a hypothesis."),
+        "tests": Key("names", ("partial_mantel",), "Tests planned for: \"partial_mantel\", "
+                     "\"mantel\", \"vectors\"."),
+        "bootstrap": Key("int", 0, "Bootstrap resamples of the pilot, each refitted and "
+                         "simulated, for the spread of power (0: none).", minimum=0),
+        "jitter": Key("number", 0.1, "Jitter of resampled pilot sites, as a share of each "
+                      "variable's spread.", minimum=0),
+        "starts": Key("int", 3, "NMDS starts in each simulated survey (the vectors test).",
+                      minimum=1),
+        "folder": Key("path", "plan", "Folder the plan is written to."),
+    },
     "output": {
         "folder": Key("path", "report", "Folder the report is written to."),
         "level": Key("float", 0.05, "Significance level used for the verdicts."),
@@ -318,6 +336,14 @@ def _check_value(section: str, name: str, key: Key, value: Any, base: Path) -> A
         return float(value)
     if key.kind == "names":
         return _check_names(value, where)
+    if key.kind == "counts":
+        if isinstance(value, int) and not isinstance(value, bool):
+            value = [value]
+        if not isinstance(value, list) or not value or not all(
+                isinstance(v, int) and not isinstance(v, bool) for v in value):
+            raise InputError(f"{where} must be a list of whole numbers, e.g. [20, 40, 60]; got "
+                             f"{value!r}.")
+        return tuple(value)
     if key.kind == "compositions":
         if not isinstance(value, list) or not all(isinstance(v, list) for v in value):
             raise InputError(f"{where} must be a list of lists of column names, e.g. "

@@ -14,6 +14,7 @@ import subprocess
 import sys
 from collections.abc import Callable
 from pathlib import Path
+from types import SimpleNamespace
 
 import matplotlib as mpl
 import pandas as pd
@@ -30,6 +31,12 @@ from gradients.plot._kit import made_here
 ROOT = Path(__file__).resolve().parents[2]
 
 RANKING = pd.DataFrame({"variable": ["Cu", "sand"], "r2": [0.5, 0.1], "pvalue": [0.001, 0.4]})
+POWER = SimpleNamespace(  # the fields of a SurveyPowerResult that power_curve reads
+    table=pd.DataFrame({"hypothesis": ["Cu", "Cu", "Cu"], "test": ["mantel"] * 3,
+                        "n_sites": [10, 20, 10], "method": ["simulation"] * 2 + ["subsample"],
+                        "power": [0.3, 0.7, 0.4], "power_low": [0.2, 0.6, 0.3],
+                        "power_high": [0.4, 0.8, 0.5]}),
+    target_power=0.8, alpha=0.05)
 CURVES = pd.DataFrame({"variable": ["Cu"] * 3 + ["sand"] * 3, "value": [0.0, 5, 10] * 2,
                        "turnover": [0.0, 0.4, 0.5, 0.0, 0.1, 0.2]})
 
@@ -49,6 +56,7 @@ def _calls(demo) -> dict[str, Callable[..., object]]:
         "distance_decay": lambda **kw: plot.distance_decay(demo.decay, **kw),
         "hypotheses": lambda **kw: plot.hypotheses({"metals": demo.partial}, **kw),
         "ranking": lambda **kw: plot.ranking(RANKING, **kw),
+        "power_curve": lambda **kw: plot.power_curve(POWER, **kw),
         "partition": lambda **kw: plot.partition(demo.parts, **kw),
         "dendrogram": lambda **kw: plot.dendrogram(demo.clusters, **kw),
         "dispersion": lambda **kw: plot.dispersion(demo.dispersion, **kw),

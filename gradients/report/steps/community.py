@@ -258,11 +258,12 @@ def environment_step(ctx: Context) -> None:
     ctx.results["environment"] = _analysis_environment(ctx)
     logs = set(ctx.settings["environment.log10"])
     ctx.results["analysis_names"] = {c: (f"log10({c})" if c in logs else c) for c in env.columns}
-    distances = {}
+    distances, tables = {}, {}
     for name, variables in ctx.hypotheses.items():
-        table = _hypothesis_table(ctx, variables, f"`hypotheses.{name}`")
-        _check_counts(ctx, name, table, f"`hypotheses.{name}`")
-        distances[name] = environmental_distance(table)
+        tables[name] = _hypothesis_table(ctx, variables, f"`hypotheses.{name}`")
+        _check_counts(ctx, name, tables[name], f"`hypotheses.{name}`")
+        distances[name] = environmental_distance(tables[name])
+    ctx.results["hypothesis_tables"] = tables  # analysis units (the survey planner's model)
     cov = ctx.settings["design.covariables"]
     if cov:
         table = _hypothesis_table(ctx, tuple(cov), "`design.covariables`")

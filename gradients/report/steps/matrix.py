@@ -13,8 +13,9 @@ from .._model import Section
 from .._pipeline import Context, Skip
 from ._common import _add_figure, _fmt_p, _predictors, _strata
 
-__all__ = ["correlogram_step", "distance_decay_check", "distance_decay_step", "mantel_step",
-           "partial_mantel_step", "regression_step", "spatial_check"]
+__all__ = ["correlogram_step", "distance_decay_check", "distance_decay_step", "mantel_results",
+           "mantel_step", "partial_mantel_results", "partial_mantel_step", "regression_step",
+           "spatial_check"]
 
 
 def spatial_check(ctx: Context) -> None:
@@ -123,21 +124,33 @@ def _spatial_check(sec: Section, results: dict[str, Any], label: str) -> None:
     sec.notes.insert(0, note)
 
 
-def mantel_step(ctx: Context) -> None:
+def mantel_results(ctx: Context, *, spatial: bool = True, early_stop: int | None = None,
+                   n_jobs: int = 1) -> dict[str, Any]:
+    """The Mantel test of each predictor (hypotheses and geography) as the report runs it.
+
+    ``spatial=False`` leaves out the spatially constrained null; ``early_stop`` and ``n_jobs``
+    go to :func:`gradients.mantel` (the survey planner re-runs the tests with them).
+    """
     from ...matrix import mantel
 
     community = ctx.results["community"]
     preds = _predictors(ctx)
     preds.pop("covariables", None)
-    if not preds:
-        return
-    rows = []
     results = {}
     for name, d in preds.items():
-        spatial = _spatial_kwargs(ctx) if name != "geography" else {}
-        res = mantel(d, community, n_resamples=ctx.n_resamples, rng=ctx.rng(f"mantel:{name}"),
-                     strata=_strata(ctx), **spatial)
-        results[name] = res
+        extra = _spatial_kwargs(ctx) if spatial and name != "geography" else {}
+        results[name] = mantel(d, community, n_resamples=ctx.n_resamples,
+                               rng=ctx.rng(f"mantel:{name}"), strata=_strata(ctx),
+                               early_stop=early_stop, n_jobs=n_jobs, **extra)
+    return results
+
+
+def mantel_step(ctx: Context) -> None:
+    results = mantel_results(ctx)
+    if not results:
+        return
+    rows = []
+    for name, res in results.items():
         rows.append({"predictor": name, "statistic": res.statistic, "pvalue": res.pvalue,
                      "pvalue_spatial": res.pvalue_spatial, "method": res.method,
                      "n_sites": res.n_sites, "n_pairs": res.n_pairs,
@@ -171,22 +184,39 @@ def mantel_step(ctx: Context) -> None:
             for n, r in results.items()) + ".")
 
 
-def partial_mantel_step(ctx: Context) -> None:
+def partial_mantel_results(ctx: Context, *, spatial: bool = True,
+                           early_stop: int | None = None, n_jobs: int = 1) -> dict[str, Any]:
+    """The partial Mantel test of each hypothesis given every other predictor, as the report
+    runs it (empty when there are no hypotheses or fewer than two predictors).
+
+    ``spatial=False`` leaves out the spatially constrained null; ``early_stop`` and ``n_jobs``
+    go to :func:`gradients.partial_mantel` (the survey planner re-runs the tests with them).
+    """
     from ...matrix import partial_mantel
 
     community = ctx.results["community"]
     hyp = ctx.results.get("hypothesis_distances", {})
     preds = _predictors(ctx)
     if not hyp or len(preds) < 2:
-        return
-    rows = []
+        return {}
+    extra = _spatial_kwargs(ctx) if spatial else {}
     results = {}
     for name, d in hyp.items():
         controls = {k: v for k, v in preds.items() if k != name}
-        res = partial_mantel(d, community, controls, permute="residuals",
-                             n_resamples=ctx.n_resamples, rng=ctx.rng(f"partial:{name}"),
-                             strata=_strata(ctx), **_spatial_kwargs(ctx))
-        results[name] = res
+        results[name] = partial_mantel(d, community, controls, permute="residuals",
+                                       n_resamples=ctx.n_resamples,
+                                       rng=ctx.rng(f"partial:{name}"), strata=_strata(ctx),
+                                       early_stop=early_stop, n_jobs=n_jobs, **extra)
+    return results
+
+
+def partial_mantel_step(ctx: Context) -> None:
+    results = partial_mantel_results(ctx)
+    if not results:
+        return
+    preds = _predictors(ctx)
+    rows = []
+    for name, res in results.items():
         rows.append({"hypothesis": name, "controls": ", ".join(res.controls),
                      "statistic": res.statistic, "r_simple": res.r_xy, "pvalue": res.pvalue,
                      "pvalue_spatial": res.pvalue_spatial, "permute": res.permute,

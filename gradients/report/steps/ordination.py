@@ -12,8 +12,8 @@ from .._model import Section
 from .._pipeline import Context, Skip
 from ._common import METRIC_NAMES, _add_figure, _fmt_p, _numeric, _section, _strata
 
-__all__ = ["biplot_step", "factors_step", "ordination_check", "ordination_step",
-           "surfaces_check", "surfaces_step", "vectors_check", "vectors_step"]
+__all__ = ["biplot_step", "factors_step", "ordinate", "ordination_check", "ordination_step",
+           "surfaces_check", "surfaces_step", "vector_fit", "vectors_check", "vectors_step"]
 
 #: Fewest sites with values a smooth surface is fitted to (the rule of ``fit_surface``).
 SURFACE_MIN_SITES = 8
@@ -31,16 +31,26 @@ def ordination_check(ctx: Context) -> None:
             f"sites; the survey has {n}. Lower `[analyses] dimensions`, or add sites.")
 
 
-def ordination_step(ctx: Context) -> None:
-    from ...ordination import nmds, pcoa, taxon_scores
-    from ...plot import shepard
+def ordinate(ctx: Context) -> object:
+    """The ordination of the community dissimilarities the project asks for (NMDS or PCoA)."""
+    from ...ordination import nmds, pcoa
 
     d = ctx.results["community"]
+    k = ctx.settings["analyses.dimensions"]
+    if ctx.settings["analyses.ordination"] == "nmds":
+        return nmds(d, dimensions=k, starts=ctx.settings["analyses.starts"], rng=ctx.rng("nmds"))
+    return pcoa(d, dimensions=k)
+
+
+def ordination_step(ctx: Context) -> None:
+    from ...ordination import taxon_scores
+    from ...plot import shepard
+
     kind = ctx.settings["analyses.ordination"]
     k = ctx.settings["analyses.dimensions"]
     sec = Section("ordination", "Ordination of the communities")
+    res = ordinate(ctx)
     if kind == "nmds":
-        res = nmds(d, dimensions=k, starts=ctx.settings["analyses.starts"], rng=ctx.rng("nmds"))
         sec.paragraphs.append(
             f"Non-metric multidimensional scaling in {k} dimensions: stress {res.stress:.3f} "
             f"({res.stress_verdict}). {res.n_agreeing} of the starts reached the best solution"
@@ -52,7 +62,6 @@ def ordination_step(ctx: Context) -> None:
         starts = res.table.copy()
         sec.tables["nmds_starts"] = starts
     else:
-        res = pcoa(d, dimensions=k)
         prop = res.proportion_explained
         sec.paragraphs.append(
             f"Principal coordinates analysis: the first two axes hold "
@@ -83,13 +92,20 @@ def vectors_check(ctx: Context) -> None:
         raise Skip("the environmental table has no numeric variables")
 
 
-def vectors_step(ctx: Context) -> None:
+def vector_fit(ctx: Context) -> object:
+    """Every numeric variable (in analysis units) fitted as a vector onto the ordination."""
     from ...fitting import fit_vectors
 
     scores = ctx.results["ordination"].scores
     env = _numeric(ctx.results["environment"])
-    fit = fit_vectors(scores, env, n_resamples=ctx.n_resamples, rng=ctx.rng("vectors"),
-                      strata=_strata(ctx))
+    if env.shape[1] == 0:
+        raise Skip("the environmental table has no numeric variables")
+    return fit_vectors(scores, env, n_resamples=ctx.n_resamples, rng=ctx.rng("vectors"),
+                       strata=_strata(ctx))
+
+
+def vectors_step(ctx: Context) -> None:
+    fit = vector_fit(ctx)
     ctx.results["vectors"] = fit
     axes = list(fit.axes)
     table = fit.table.copy()
