@@ -180,7 +180,10 @@ def methods_text(result: SurveyPowerResult, settings: dict[str, Any]) -> str:
         "(Besag & Clifford 1991). Power is the share of surveys detecting a hypothesis at "
         f"p <= {result.alpha:g}, with {100 * INTERVAL_LEVEL:.0f} % Wilson score intervals "
         "(Wilson 1927); the false detection rate is the same share in twin surveys whose "
-        "counts were drawn with every hypothesis' effect set to zero.",
+        "counts were drawn with every hypothesis' effect set to zero. The report's verdicts "
+        "also ask for the spatially constrained p-value, which has somewhat less power: the "
+        "power given here is an upper bound on the chance that a report on the new survey "
+        "calls a hypothesis supported.",
     ]
     if sub:
         parts.append(f"At {', '.join(map(str, sub))} sites the pilot itself was also "
