@@ -6,6 +6,7 @@ import contextlib
 import functools
 import itertools
 import numbers
+import time
 from collections.abc import Callable
 from dataclasses import dataclass
 
@@ -16,6 +17,14 @@ from .._result import ResultMixin
 from .._validation import check_alternative, check_n_jobs
 from ._plan import PermutationPlan
 from ._progress import current_reporter
+from ._workers import (
+    AUTO,
+    available_cores,
+    dask_client,
+    kernel_request,
+    resolve_request,
+    should_spread,
+)
 from ._pvalue import count_extreme, extreme_mask, pvalue_from_counts
 
 __all__ = ["PermutationResult", "permutation_test"]
@@ -86,7 +95,7 @@ def permutation_test(
     alternative: str = "greater",
     center: float | np.ndarray | None = None,
     early_stop: int | None = None,
-    n_jobs: int = 1,
+    n_jobs: int | None = -1,
     backend: str = "loky",
     task: str = "permutations",
 ) -> PermutationResult:
@@ -115,9 +124,15 @@ def permutation_test(
         at least as extreme as the observed one have been seen after ``L`` rearrangements, and
         report ``p = early_stop / L``. Saves time when p is clearly large. Batches are then run
         in order in this process.
-    n_jobs : int, default 1
-        Workers evaluating batches in parallel (joblib; -1 for all cores). The result does not
-        depend on it.
+    n_jobs : int or None, default -1
+        Workers evaluating batches. ``-1``: up to all cores, by the size rule (the run starts
+        on one worker and spreads over the cores once the batches left would take more than
+        about a second there; see :mod:`gradients.permutation._workers`); ``1``: one worker;
+        ``k``: ``k`` workers; ``None``: the workers of an enclosing ``joblib.parallel_config``
+        (one outside any). Inside ``joblib.parallel_config(backend="dask")`` with a
+        ``dask.distributed`` client the batches run on the cluster's workers. Inside a
+        kernel-thread block (``numba_threads``) the block's ``n_jobs`` decides and the workers
+        are the kernels' threads. The result never depends on it.
     backend : {'loky', 'threading'}, default 'loky'
         joblib backend; 'threading' suits statistics that release the GIL (BLAS, numba nogil).
     task : str
@@ -178,11 +193,12 @@ def permutation_test(
             "rearrangements with. Check the data for constant or missing values.")
 
     reporter = current_reporter()
-    nb = plan.n_batches
+    size, per_batch = plan.size, plan.batch_size
 
     def note(done: int) -> None:
+        # the engine counts batches; a reporter is told permutations
         if reporter is not None:
-            reporter(task, done, nb)
+            reporter(task, min(done * per_batch, size), size)
 
     with _one_blas_thread():
         return _run(statistic, plan, obs_vec, scalar, alternative, center, early_stop,
@@ -249,13 +265,7 @@ def _run(statistic: Statistic, plan: PermutationPlan, obs_vec: np.ndarray, scala
         null = np.concatenate(chunks, axis=0)
         used[~stopped] = null.shape[0]
     else:
-        if nb == 1:
-            parts = [_evaluate(statistic, plan, 0)]
-            note(1)
-        elif n_jobs == 1:
-            parts = _run_prefetching(statistic, plan, note)
-        else:
-            parts = _run_parallel(statistic, plan, n_jobs, backend, note)
+        parts = _run_batches(statistic, plan, n_jobs, backend, note)
         null = np.concatenate([_as_rows(p, obs_vec.size) for p in parts], axis=0)
 
     bad = np.isnan(null)
@@ -291,33 +301,102 @@ def _run(statistic: Statistic, plan: PermutationPlan, obs_vec: np.ndarray, scala
     )
 
 
-def _run_prefetching(statistic: Statistic, plan: PermutationPlan,
-                     note: Callable[[int], None]) -> list[np.ndarray]:
-    """Evaluate the batches in order in this thread while a helper thread draws the next one.
+def _run_batches(statistic: Statistic, plan: PermutationPlan, n_jobs: int | None,
+                 backend: str, note: Callable[[int], None]) -> list[np.ndarray]:
+    """Evaluate every batch, in order, on the workers ``n_jobs`` asks for (see ``_workers``)."""
+    nb = plan.n_batches
+    in_kernels, kernel_jobs = kernel_request()
+    asked = kernel_jobs if in_kernels else n_jobs
+    if nb == 1:
+        parts = [_evaluate(statistic, plan, 0)]
+        note(1)
+        return parts
+    if asked != 1:
+        client = dask_client()
+        if client is not None:
+            return _run_dask(client, statistic, plan, note)
+    request = resolve_request(asked)
+    # The workers are the compiled kernels' threads when the statistic runs on them (and the
+    # batches stay in this thread), otherwise joblib workers of `backend`.
+    pool = not (in_kernels and backend != "threading")
+    if pool and backend == "threading" and not _threads_may_share_kernels():
+        pool = False
+    if request != AUTO:
+        if request == 1 or not pool:
+            return _run_prefetching(statistic, plan, note)[0]
+        return _run_parallel(statistic, plan, request, backend, note, range(nb))
+    cores = available_cores()
+    if cores == 1:
+        with _kernel_threads(1 if in_kernels else None):
+            return _run_prefetching(statistic, plan, note)[0]
+    with _kernel_threads(1 if in_kernels else None):
+        parts, done = _run_prefetching(statistic, plan, note, spread=should_spread)
+    if done == nb:
+        return parts
+    if pool:
+        return parts + _run_parallel(statistic, plan, cores, backend, note, range(done, nb))
+    with _kernel_threads(cores if in_kernels else None):
+        return parts + _run_prefetching(statistic, plan, note, start=done)[0]
+
+
+@contextlib.contextmanager
+def _kernel_threads(n: int | None):  # type: ignore[no-untyped-def]
+    """This thread's compiled kernels on ``n`` threads inside the block (None: unchanged)."""
+    if n is None:
+        yield
+        return
+    import numba
+
+    before = numba.get_num_threads()
+    numba.set_num_threads(n)
+    try:
+        yield
+    finally:
+        numba.set_num_threads(before)
+
+
+def _run_prefetching(statistic: Statistic, plan: PermutationPlan, note: Callable[[int], None],
+                     *, start: int = 0,
+                     spread: Callable[..., bool] | None = None) -> tuple[list[np.ndarray], int]:
+    """Evaluate batches in order in this thread while a helper thread draws the next one.
 
     Drawing random orders (a compiled kernel that releases the GIL) then overlaps with the
     statistic instead of alternating with it; the helper draws on one thread so that the two
     share the cores. Enumerated and custom plans, whose batches are slices or Python draws,
     and numba's 'workqueue' layer (see :func:`_threads_may_share_kernels`) run plainly.
+    With ``spread`` (the size rule), each batch is timed and the loop stops once
+    ``spread(seconds, batches_left, first=...)`` says the rest should go to more workers.
+    Returns the statistics and the index of the first batch not evaluated.
     """
     nb = plan.n_batches
     parts: list[np.ndarray] = []
+
+    def stop(i: int, began: float) -> bool:
+        return spread is not None and spread(time.perf_counter() - began, nb - i - 1,
+                                             first=i == start)
+
     if plan.exact or plan._draw is not None or not _threads_may_share_kernels():
-        for i in range(nb):
+        for i in range(start, nb):
+            began = time.perf_counter()
             parts.append(_evaluate(statistic, plan, i))
             note(i + 1)
-        return parts
+            if stop(i, began):
+                return parts, i + 1
+        return parts, nb
     from concurrent.futures import ThreadPoolExecutor
 
     with ThreadPoolExecutor(max_workers=1, thread_name_prefix="gradients-draw") as pool:
-        pending = pool.submit(_draw_one_thread, plan, 0)
-        for i in range(nb):
+        pending = pool.submit(_draw_one_thread, plan, start)
+        for i in range(start, nb):
+            began = time.perf_counter()
             orders = pending.result()
             if i + 1 < nb:
                 pending = pool.submit(_draw_one_thread, plan, i + 1)
             parts.append(_checked(statistic(orders), plan, i))
             note(i + 1)
-    return parts
+            if stop(i, began):
+                return parts, i + 1
+    return parts, nb
 
 
 def _draw_one_thread(plan: PermutationPlan, i: int) -> np.ndarray:
@@ -350,28 +429,27 @@ def _evaluate_many_one_thread(statistic: Statistic, plan: PermutationPlan,
         numba.set_num_threads(before)
 
 
-def _run_parallel(statistic: Statistic, plan: PermutationPlan, n_jobs: int, backend: str,
-                  note: Callable[[int], None]) -> list[np.ndarray]:
-    """Evaluate all batches on several workers, in order.
+def _chunks(indices: range, workers: int) -> list[range]:
+    """A few contiguous chunks of batches per worker, so that the statistic (which may hold
+    large arrays) is sent to each worker a few times rather than once per batch."""
+    n_chunks = min(len(indices), 4 * workers)
+    edges = np.linspace(indices.start, indices.stop, n_chunks + 1).round().astype(int)
+    return [range(int(a), int(b)) for a, b in itertools.pairwise(edges) if b > a]
 
-    Batches are grouped into a few contiguous chunks per worker, so that the statistic (which
-    may hold large arrays) is sent to each worker a few times rather than once per batch.
-    """
+
+def _run_parallel(statistic: Statistic, plan: PermutationPlan, n_jobs: int, backend: str,
+                  note: Callable[[int], None], indices: range) -> list[np.ndarray]:
+    """Evaluate the batches ``indices`` on several joblib workers, in order."""
     from joblib import Parallel, delayed, effective_n_jobs
 
     workers = max(1, effective_n_jobs(n_jobs))
-    if backend == "threading" and not _threads_may_share_kernels():
-        workers = 1
     parts: list[np.ndarray] = []
     if workers == 1:
-        for i in range(plan.n_batches):
+        for i in indices:
             parts.append(_evaluate(statistic, plan, i))
             note(i + 1)
         return parts
-    nb = plan.n_batches
-    n_chunks = min(nb, 4 * workers)
-    edges = np.linspace(0, nb, n_chunks + 1).round().astype(int)
-    chunks = [range(int(a), int(b)) for a, b in itertools.pairwise(edges) if b > a]
+    chunks = _chunks(indices, workers)
     runner = Parallel(n_jobs=workers, backend=backend, return_as="generator")
     task = _evaluate_many_one_thread if backend == "threading" else _evaluate_many
     for chunk, values in zip(chunks, runner(delayed(task)(statistic, plan, c)
@@ -379,6 +457,37 @@ def _run_parallel(statistic: Statistic, plan: PermutationPlan, n_jobs: int, back
         parts.extend(values)
         note(chunk.stop)
     return parts
+
+
+def _run_dask(client: object, statistic: Statistic, plan: PermutationPlan,
+              note: Callable[[int], None]) -> list[np.ndarray]:
+    """Evaluate every batch on the workers of a ``dask.distributed`` client.
+
+    The statistic (with the base matrices it holds) and the plan are scattered to every worker
+    once; each task then evaluates a contiguous chunk of batches, each drawn from its own
+    ``SeedSequence`` child exactly as here, and the chunks are put back in order.
+    """
+    from distributed import as_completed
+
+    nb = plan.n_batches
+    workers = max(1, sum(client.nthreads().values()))  # type: ignore[attr-defined]
+    chunks = _chunks(range(nb), workers)
+    stat_f, plan_f = client.scatter([statistic, plan], broadcast=True,  # type: ignore[attr-defined]
+                                    hash=False)
+    futures = [client.submit(_evaluate_many, stat_f, plan_f, c, pure=False)  # type: ignore[attr-defined]
+               for c in chunks]
+    position = {f.key: k for k, f in enumerate(futures)}
+    done: dict[int, list[np.ndarray]] = {}
+    finished = 0
+    try:
+        for future in as_completed(futures):
+            k = position[future.key]
+            done[k] = future.result()
+            finished += len(chunks[k])
+            note(finished)
+    finally:
+        client.cancel([*futures, stat_f, plan_f])  # type: ignore[attr-defined]
+    return [values for k in range(len(chunks)) for values in done[k]]
 
 
 def _threads_may_share_kernels() -> bool:
