@@ -17,6 +17,7 @@ from .._result import ResultMixin
 from .._validation import check_alternative, check_n_jobs
 from ._plan import PermutationPlan
 from ._progress import current_reporter
+from ._pvalue import count_extreme, extreme_mask, pvalue_from_counts
 from ._workers import (
     AUTO,
     available_cores,
@@ -25,7 +26,6 @@ from ._workers import (
     resolve_request,
     should_spread,
 )
-from ._pvalue import count_extreme, extreme_mask, pvalue_from_counts
 
 __all__ = ["PermutationResult", "permutation_test"]
 
