@@ -2,24 +2,25 @@
 
 ::
 
-    gradients demo --out DIR [--force] [--permutations N] [--seed S]
+    gradients demo --out DIR [--force] [--permutations N] [--seed S] [--quiet]
     gradients init DIR
     gradients check FILE | --community C --environment E [--locations L] [--site-column S]
-    gradients run FILE [--out DIR] [--force]
+    gradients run FILE [--out DIR] [--force] [--quiet]
     gradients --version
 
 The command line only parses arguments and calls :mod:`gradients.report`. Problems with the
 input print one message to stderr and exit with status 2; unexpected errors exit with status 1
-and a hint. Long permutation runs show a progress bar when stderr is a terminal.
+and a hint. Long permutation runs show a progress bar when stderr is a terminal (not with
+``--quiet``).
 """
 
 from __future__ import annotations
 
 import argparse
+import contextlib
 import sys
 import time
-from collections.abc import Sequence
-from typing import Any
+from collections.abc import Iterator, Sequence
 
 from . import __version__
 from ._errors import InputError
@@ -48,6 +49,7 @@ def _parser() -> argparse.ArgumentParser:
     demo.add_argument("--permutations", type=int, default=None, metavar="N",
                       help="permutations per test (default 999)")
     demo.add_argument("--seed", type=int, default=1, metavar="S", help="random seed (default 1)")
+    demo.add_argument("--quiet", action="store_true", help="no progress bars")
 
     init = sub.add_parser("init", help="write a template project with the demo data",
                           description="Write a commented, runnable project file and a copy of "
@@ -75,13 +77,25 @@ def _parser() -> argparse.ArgumentParser:
                      help="report folder (default: `output.folder` of the project file)")
     run.add_argument("--force", action="store_true",
                      help="replace an existing report folder (only once the new one is done)")
+    run.add_argument("--quiet", action="store_true", help="no progress bars")
     return p
 
 
-def _progress() -> Any:
+@contextlib.contextmanager
+def _progress(quiet: bool = False) -> Iterator[None]:
+    """Progress bars on stderr when it is a terminal, none with ``--quiet``."""
     from .permutation import TerminalProgress, report_progress
 
-    return report_progress(TerminalProgress(sys.stderr))
+    if quiet:
+        with report_progress(None):
+            yield
+        return
+    bars = TerminalProgress(sys.stderr)
+    try:
+        with report_progress(bars):
+            yield
+    finally:
+        bars.close()
 
 
 def _cmd_demo(args: argparse.Namespace) -> int:
@@ -94,7 +108,7 @@ def _cmd_demo(args: argparse.Namespace) -> int:
     if args.seed < 0:
         raise InputError(f"--seed must be zero or a positive whole number; got {args.seed}.")
     start = time.perf_counter()
-    with _progress():
+    with _progress(getattr(args, "quiet", False)):
         folder = run_demo(args.out, force=args.force, n_resamples=n, rng=args.seed)
     print(f"Demo report written to {folder} in {time.perf_counter() - start:.0f} s.")
     print(f"Open {folder / 'report.html'} in a web browser.")
@@ -134,7 +148,7 @@ def _cmd_run(args: argparse.Namespace) -> int:
     from .report import run_project
 
     start = time.perf_counter()
-    with _progress():
+    with _progress(getattr(args, "quiet", False)):
         folder = run_project(args.project, out=args.out, force=args.force)
     print(f"Report written to {folder} in {time.perf_counter() - start:.0f} s.")
     print(f"Open {folder / 'report.html'} in a web browser.")
