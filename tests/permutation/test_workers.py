@@ -28,10 +28,28 @@ N = 20
 LABELS = [f"s{i:02d}" for i in range(N)]
 
 
-@pytest.fixture
-def spread_early(monkeypatch: pytest.MonkeyPatch) -> None:
-    monkeypatch.setattr(_workers, "SERIAL_SECONDS", 0.0)
+def small_batches(monkeypatch: pytest.MonkeyPatch) -> None:
+    """Batches of 16 permutations in every stage, so that small runs have several."""
     monkeypatch.setattr(_plan, "DEFAULT_BATCH", 16)
+    for module in ("gradients.partition._ftest", "gradients.groups._classes",
+                   "gradients.groups._permanova"):
+        monkeypatch.setattr(f"{module}.BATCH_SIZE", 16)
+
+
+@pytest.fixture
+def spread_early(monkeypatch: pytest.MonkeyPatch) -> list[int]:
+    """The size rule spreads every run after its first batch; yields the batch counts seen."""
+    monkeypatch.setattr(_workers, "SERIAL_SECONDS", 0.0)
+    small_batches(monkeypatch)
+    seen: list[int] = []
+    real = _engine._run_batches
+
+    def counting(statistic, plan, *args):
+        seen.append(plan.n_batches)
+        return real(statistic, plan, *args)
+
+    monkeypatch.setattr(_engine, "_run_batches", counting)
+    return seen
 
 
 def _data():
@@ -67,7 +85,8 @@ def _calls():
                                                             n_resamples=99, rng=1, **kw),
         "fit_vectors": lambda kw: g.fit_vectors(scores, env, n_resamples=99, rng=1, **kw),
         "fit_factors": lambda kw: g.fit_factors(scores, design, n_resamples=99, rng=1, **kw),
-        "fit_surface": lambda kw: g.fit_surface(scores, env["pH"], n_resamples=39, rng=1, **kw),
+        "fit_surface": lambda kw: g.fit_surface(scores, env["pH"], n_resamples=1099, rng=1,
+                                                  **kw),
         "permanova": lambda kw: g.permanova(d, design, n_resamples=99, rng=1, **kw),
         "dispersion_test": lambda kw: g.dispersion_test(d, groups, n_resamples=99, rng=1, **kw),
         "anosim": lambda kw: g.anosim(d, groups, n_resamples=99, rng=1, **kw),
@@ -137,16 +156,17 @@ def test_every_exported_permutation_test_is_covered():
 
 
 @pytest.mark.parametrize("name", sorted(_calls()))
-def test_results_do_not_depend_on_n_jobs(name: str, spread_early: None):
+def test_results_do_not_depend_on_n_jobs(name: str, spread_early: list[int]):
     call = _calls()[name]
     one = call({"n_jobs": 1})
+    assert max(spread_early) > 1  # batches to share: the parallel paths do run
     for kw in ({"n_jobs": 2}, {}, {"n_jobs": None}):
         _assert_same(one, call(kw), f"{name}{kw}")
     with joblib.parallel_config(n_jobs=2):
         _assert_same(one, call({"n_jobs": None}), f"{name} n_jobs=None in parallel_config")
 
 
-def test_the_engine_alone_gives_the_same_null_on_every_path(spread_early: None):
+def test_the_engine_alone_gives_the_same_null_on_every_path(spread_early: list[int]):
     y = np.random.default_rng(2).normal(size=30)
     plan = permutation_plan(30, n_resamples=499, rng=5)
     assert plan.n_batches > 2
