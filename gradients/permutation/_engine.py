@@ -480,7 +480,7 @@ def _run_dask(client: object, statistic: Statistic, plan: PermutationPlan,
     done: dict[int, list[np.ndarray]] = {}
     finished = 0
     try:
-        for future in as_completed(futures):
+        for future in as_completed(futures, loop=client.loop):  # type: ignore[attr-defined]
             k = position[future.key]
             done[k] = future.result()
             finished += len(chunks[k])

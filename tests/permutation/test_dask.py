@@ -29,7 +29,7 @@ LABELS = [f"s{i:02d}" for i in range(N)]
 def client():
     cluster = distributed.LocalCluster(n_workers=2, processes=True, threads_per_worker=1,
                                        dashboard_address=None)
-    c = distributed.Client(cluster)
+    c = distributed.Client(cluster, set_as_default=False)
     try:
         yield c
     finally:
