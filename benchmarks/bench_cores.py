@@ -5,7 +5,8 @@ Run as ``python benchmarks/bench_cores.py``; prints Markdown tables (and writes 
 The plain baseline is ``n_jobs=1`` (one worker: batches in order in the calling thread while a
 helper thread draws the next batch), measured in the same run as ``n_jobs=2`` (two workers
 from the start) and the default ``n_jobs=-1`` (the size rule: start on one worker and spread
-the batches left over the cores once they would take more than ``SERIAL_SECONDS`` there).
+the whole run over the cores when a short timing projects more than ``SERIAL_SECONDS`` of work
+on one worker, ``PROCESS_SECONDS`` for joblib processes).
 Three kinds of workers, one table each:
 
 1. compiled-kernel threads (the Mantel test: the cross-product kernel on 1 or 2 threads);
@@ -104,7 +105,7 @@ def bench_processes() -> pd.DataFrame:
     a = rng.normal(size=(300, 300))
     cols, block = np.arange(30), a[:30, :30]
     rows = []
-    for perms in (999, 9_999, 49_999):
+    for perms in (999, 9_999, 49_999, 199_999):
         plan = permutation_plan(300, n_resamples=perms, rng=3)
 
         def run(j, plan=plan):
@@ -115,14 +116,22 @@ def bench_processes() -> pd.DataFrame:
     return pd.DataFrame(rows)
 
 
+def _markdown(frame: pd.DataFrame) -> str:
+    head = "| " + " | ".join(frame.columns) + " |"
+    rule = "|" + "---|" * frame.shape[1]
+    rows = ["| " + " | ".join(str(v) for v in row) + " |" for row in frame.itertuples(index=False)]
+    return "\n".join([head, rule, *rows])
+
+
 def main() -> None:
     print(f"Free share of the second core: {free_cores():.2f} (2.00 = all of it); "
-          f"SERIAL_SECONDS = {_workers.SERIAL_SECONDS}\n")
+          f"SERIAL_SECONDS = {_workers.SERIAL_SECONDS}, "
+          f"PROCESS_SECONDS = {_workers.PROCESS_SECONDS}\n")
     for title, fn in (("Compiled-kernel threads", bench_kernels),
                       ("joblib threads", bench_threads),
                       ("joblib processes", bench_processes)):
         print(f"### {title}\n")
-        print(fn().to_markdown(index=False))
+        print(_markdown(fn()), flush=True)
         print()
 
 

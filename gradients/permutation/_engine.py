@@ -6,7 +6,6 @@ import contextlib
 import functools
 import itertools
 import numbers
-import time
 from collections.abc import Callable
 from dataclasses import dataclass
 
@@ -23,6 +22,7 @@ from ._workers import (
     available_cores,
     dask_client,
     kernel_request,
+    one_worker_seconds,
     resolve_request,
     should_spread,
 )
@@ -125,9 +125,10 @@ def permutation_test(
         report ``p = early_stop / L``. Saves time when p is clearly large. Batches are then run
         in order in this process.
     n_jobs : int or None, default -1
-        Workers evaluating batches. ``-1``: up to all cores, by the size rule (the run starts
-        on one worker and spreads over the cores once the batches left would take more than
-        about a second there; see :mod:`gradients.permutation._workers`); ``1``: one worker;
+        Workers evaluating batches. ``-1``: up to all cores, by the size rule (a run that
+        would take more than about a second on one worker, timed on a few rearrangements
+        first, is spread over the cores; see :mod:`gradients.permutation._workers`); ``1``:
+        one worker;
         ``k``: ``k`` workers; ``None``: the workers of an enclosing ``joblib.parallel_config``
         (one outside any). Inside ``joblib.parallel_config(backend="dask")`` with a
         ``dask.distributed`` client the batches run on the cluster's workers. Inside a
@@ -307,11 +308,7 @@ def _run_batches(statistic: Statistic, plan: PermutationPlan, n_jobs: int | None
     nb = plan.n_batches
     in_kernels, kernel_jobs = kernel_request()
     asked = kernel_jobs if in_kernels else n_jobs
-    if nb == 1:
-        parts = [_evaluate(statistic, plan, 0)]
-        note(1)
-        return parts
-    if asked != 1:
+    if asked != 1 and nb > 1:
         client = dask_client()
         if client is not None:
             return _run_dask(client, statistic, plan, note)
@@ -321,22 +318,25 @@ def _run_batches(statistic: Statistic, plan: PermutationPlan, n_jobs: int | None
     pool = not (in_kernels and backend != "threading")
     if pool and backend == "threading" and not _threads_may_share_kernels():
         pool = False
+    if nb == 1 and pool:
+        pool, request = False, 1  # one batch: nothing to share between workers
     if request != AUTO:
         if request == 1 or not pool:
-            return _run_prefetching(statistic, plan, note)[0]
+            return _run_prefetching(statistic, plan, note)
         return _run_parallel(statistic, plan, request, backend, note, range(nb))
     cores = available_cores()
     if cores == 1:
         with _kernel_threads(1 if in_kernels else None):
-            return _run_prefetching(statistic, plan, note)[0]
+            return _run_prefetching(statistic, plan, note)
     with _kernel_threads(1 if in_kernels else None):
-        parts, done = _run_prefetching(statistic, plan, note, spread=should_spread)
-    if done == nb:
-        return parts
+        serial, first = one_worker_seconds(statistic, plan)
+    if not should_spread(serial, processes=pool and backend != "threading"):
+        with _kernel_threads(1 if in_kernels else None):
+            return _run_prefetching(statistic, plan, note, first=first)
     if pool:
-        return parts + _run_parallel(statistic, plan, cores, backend, note, range(done, nb))
+        return _run_parallel(statistic, plan, cores, backend, note, range(nb))
     with _kernel_threads(cores if in_kernels else None):
-        return parts + _run_prefetching(statistic, plan, note, start=done)[0]
+        return _run_prefetching(statistic, plan, note, first=first)
 
 
 @contextlib.contextmanager
@@ -356,47 +356,37 @@ def _kernel_threads(n: int | None):  # type: ignore[no-untyped-def]
 
 
 def _run_prefetching(statistic: Statistic, plan: PermutationPlan, note: Callable[[int], None],
-                     *, start: int = 0,
-                     spread: Callable[..., bool] | None = None) -> tuple[list[np.ndarray], int]:
-    """Evaluate batches in order in this thread while a helper thread draws the next one.
+                     first: np.ndarray | None = None) -> list[np.ndarray]:
+    """Evaluate the batches in order in this thread while a helper thread draws the next one.
 
     Drawing random orders (a compiled kernel that releases the GIL) then overlaps with the
     statistic instead of alternating with it; the helper draws on one thread so that the two
-    share the cores. Enumerated and custom plans, whose batches are slices or Python draws,
-    and numba's 'workqueue' layer (see :func:`_threads_may_share_kernels`) run plainly.
-    With ``spread`` (the size rule), each batch is timed and the loop stops once
-    ``spread(seconds, batches_left, first=...)`` says the rest should go to more workers.
-    Returns the statistics and the index of the first batch not evaluated.
+    share the cores. A single batch, enumerated and custom plans, whose batches are slices or
+    Python draws, and numba's 'workqueue' layer (see :func:`_threads_may_share_kernels`) run
+    plainly. ``first``: batch 0, already drawn (by the size rule's timing).
     """
     nb = plan.n_batches
     parts: list[np.ndarray] = []
-
-    def stop(i: int, began: float) -> bool:
-        return spread is not None and spread(time.perf_counter() - began, nb - i - 1,
-                                             first=i == start)
-
-    if plan.exact or plan._draw is not None or not _threads_may_share_kernels():
-        for i in range(start, nb):
-            began = time.perf_counter()
-            parts.append(_evaluate(statistic, plan, i))
+    if nb == 1 or plan.exact or plan._draw is not None or not _threads_may_share_kernels():
+        for i in range(nb):
+            rows = first if i == 0 and first is not None else plan.batch(i)
+            parts.append(_checked(statistic(rows), plan, i))
             note(i + 1)
-            if stop(i, began):
-                return parts, i + 1
-        return parts, nb
+        return parts
     from concurrent.futures import ThreadPoolExecutor
 
     with ThreadPoolExecutor(max_workers=1, thread_name_prefix="gradients-draw") as pool:
-        pending = pool.submit(_draw_one_thread, plan, start)
-        for i in range(start, nb):
-            began = time.perf_counter()
-            orders = pending.result()
-            if i + 1 < nb:
-                pending = pool.submit(_draw_one_thread, plan, i + 1)
+        pending = pool.submit(_draw_one_thread, plan, 1 if first is not None else 0)
+        for i in range(nb):
+            if i == 0 and first is not None:
+                orders = first
+            else:
+                orders = pending.result()
+                if i + 1 < nb:
+                    pending = pool.submit(_draw_one_thread, plan, i + 1)
             parts.append(_checked(statistic(orders), plan, i))
             note(i + 1)
-            if stop(i, began):
-                return parts, i + 1
-    return parts, nb
+    return parts
 
 
 def _draw_one_thread(plan: PermutationPlan, i: int) -> np.ndarray:

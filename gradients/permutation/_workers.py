@@ -6,14 +6,13 @@ Every analysis's ``n_jobs`` ends up here, so the rule lives in one place:
   thread draws the next batch (so one worker already keeps about two cores busy).
 * a positive ``k``: ``k`` workers from the start (joblib workers, or ``k`` threads for the
   compiled kernels of a statistic that runs on them).
-* ``n_jobs=-1`` (the default): up to all cores, by the size rule. The run starts on one worker
-  and times its batches; as soon as the batches left would take longer than
-  :data:`SERIAL_SECONDS` on one worker, the rest are spread over the cores. A short run
-  therefore costs exactly what ``n_jobs=1`` costs (starting threads or processes and sharing
-  the cores with the drawing thread would cost more than they save; see
-  ``benchmarks/bench_cores.py``), and a long one pays at most :data:`SERIAL_SECONDS` of work
-  on one worker before the others join. The first batch counts on its own only when it took
-  at least half of :data:`SERIAL_SECONDS`, because it may include loading compiled kernels.
+* ``n_jobs=-1`` (the default): up to all cores, by the size rule. Before the run the engine
+  times the statistic on a few rearrangements on one worker (:func:`one_worker_seconds`) and
+  projects the whole run; when that exceeds :data:`SERIAL_SECONDS` (threads) or
+  :data:`PROCESS_SECONDS` (joblib processes) the run is spread over every core, otherwise it
+  runs on one worker exactly as ``n_jobs=1`` does. Starting threads or processes, and sharing
+  the cores with the drawing thread, cost more than they save on short runs (see
+  ``benchmarks/bench_cores.py``).
 * ``n_jobs=None``: joblib's meaning. The workers of an enclosing ``joblib.parallel_config``
   context decide; outside any context that is one worker.
 
@@ -27,16 +26,19 @@ from __future__ import annotations
 
 import contextlib
 import contextvars
-from collections.abc import Iterator
+import time
+from collections.abc import Callable, Iterator
 from typing import Any
 
 __all__ = [
     "AUTO",
+    "PROCESS_SECONDS",
     "SERIAL_SECONDS",
     "available_cores",
     "dask_client",
     "kernel_request",
     "limit_cores",
+    "one_worker_seconds",
     "resolve_request",
     "set_kernel_request",
     "should_spread",
@@ -45,10 +47,15 @@ __all__ = [
 #: The value of ``n_jobs`` that asks for the size rule.
 AUTO = -1
 
-#: Seconds of work left on one worker above which the size rule spreads a run over the cores.
-#: Measured by ``benchmarks/bench_cores.py`` on 2 cores (docs/performance.md, "Cores"): below
-#: about a second of work the extra threads do not pay for themselves.
+#: Seconds of work on one worker above which the size rule spreads a run over the cores
+#: (threads: the compiled kernels' or joblib's). Measured by ``benchmarks/bench_cores.py`` on 2
+#: shared cores (docs/performance.md, "Cores"): below about a second the extra threads did not
+#: pay for themselves.
 SERIAL_SECONDS = 1.0
+
+#: The same for joblib worker processes (a custom statistic on the 'loky' backend), which pay
+#: to start and to receive the statistic and the plan.
+PROCESS_SECONDS = 3.0
 
 _UNSET = object()
 
@@ -111,18 +118,44 @@ def kernel_request() -> tuple[bool, int | None]:
     return (False, None) if value is _UNSET else (True, value)
 
 
-def should_spread(batch_seconds: float, batches_left: int, *, first: bool) -> bool:
-    """The size rule: True once the batches left would take over :data:`SERIAL_SECONDS`.
+def one_worker_seconds(statistic: Callable[[Any], Any], plan: Any) -> tuple[float, Any]:
+    """Projected seconds of the whole run of ``plan`` on one worker, from a short timing.
 
-    ``batch_seconds`` is the time of the batch just evaluated on one worker; ``first`` says it
-    was the run's first batch, which counts only when it took half of :data:`SERIAL_SECONDS`
-    or more (a first batch may include loading compiled kernels).
+    Batch 0 is drawn (timed), then the statistic is evaluated on its first 2 rows (discarded:
+    this may load compiled kernels), on 4 rows and on 12 rows. The difference of the last two
+    gives the cost of one rearrangement, the rest the fixed cost of a call, so a statistic with
+    a large set-up per call is not mistaken for an expensive one. About 18 rearrangements of
+    extra work; none of it reaches the result. Returns the seconds and batch 0 (for reuse).
     """
-    if batches_left < 1:
-        return False
-    if first and batch_seconds < SERIAL_SECONDS / 2:
-        return False
-    return batch_seconds * batches_left > SERIAL_SECONDS
+    nb = plan.n_batches
+    start = time.perf_counter()
+    rows = plan.batch(0)
+    draw = time.perf_counter() - start
+    k = rows.shape[0]
+    statistic(rows[: min(2, k)])
+    if k < 16:  # a tiny batch: time it whole
+        start = time.perf_counter()
+        statistic(rows)
+        return nb * (draw + time.perf_counter() - start), rows
+    start = time.perf_counter()
+    statistic(rows[:4])
+    t4 = time.perf_counter() - start
+    start = time.perf_counter()
+    statistic(rows[:12])
+    t12 = time.perf_counter() - start
+    per_row = max(t12 - t4, 0.0) / 8
+    per_call = max(t4 - 4 * per_row, 0.0)
+    return nb * (draw + per_call) + plan.size * per_row, rows
+
+
+def should_spread(one_worker: float, *, processes: bool = False) -> bool:
+    """The size rule: spread a run over the cores when one worker would take long enough.
+
+    ``one_worker`` is the projected time of the run on one worker (:func:`one_worker_seconds`);
+    the threshold is :data:`SERIAL_SECONDS` for threads and :data:`PROCESS_SECONDS` for joblib
+    processes, which cost more to start and to feed.
+    """
+    return one_worker > (PROCESS_SECONDS if processes else SERIAL_SECONDS)
 
 
 def dask_client() -> Any | None:

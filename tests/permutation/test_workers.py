@@ -12,6 +12,7 @@ after its first batch (``SERIAL_SECONDS = 0``) and batches are made small (16 pe
 from __future__ import annotations
 
 import dataclasses
+import time
 
 import joblib
 import numpy as np
@@ -38,8 +39,9 @@ def small_batches(monkeypatch: pytest.MonkeyPatch) -> None:
 
 @pytest.fixture
 def spread_early(monkeypatch: pytest.MonkeyPatch) -> list[int]:
-    """The size rule spreads every run after its first batch; yields the batch counts seen."""
+    """The size rule spreads every run; yields the batch counts seen."""
     monkeypatch.setattr(_workers, "SERIAL_SECONDS", 0.0)
+    monkeypatch.setattr(_workers, "PROCESS_SECONDS", 0.0)
     small_batches(monkeypatch)
     seen: list[int] = []
     real = _engine._run_batches
@@ -189,8 +191,8 @@ class _Spy:
 
 
 def test_a_short_run_stays_on_one_worker_by_default(monkeypatch: pytest.MonkeyPatch):
-    # The size rule: a run whose batches take well under SERIAL_SECONDS never starts workers,
-    # so the default costs what n_jobs=1 costs.
+    # The size rule: a run projected well under SERIAL_SECONDS on one worker never starts
+    # workers, so the default costs what n_jobs=1 costs.
     spy = _Spy(_engine._run_parallel)
     monkeypatch.setattr(_engine, "_run_parallel", spy)
     plan = permutation_plan(10, n_resamples=2999, rng=0, batch_size=100)
@@ -199,32 +201,50 @@ def test_a_short_run_stays_on_one_worker_by_default(monkeypatch: pytest.MonkeyPa
     assert spy.ranges == []
 
 
-def test_a_long_run_spreads_the_batches_left_over_the_cores(monkeypatch: pytest.MonkeyPatch):
+def test_a_long_run_is_spread_over_the_cores(monkeypatch: pytest.MonkeyPatch):
     spy = _Spy(_engine._run_parallel)
     monkeypatch.setattr(_engine, "_run_parallel", spy)
-    monkeypatch.setattr(_workers, "SERIAL_SECONDS", 0.0)
     plan = permutation_plan(10, n_resamples=2999, rng=0, batch_size=100)
     y = np.arange(10.0)
-    res = permutation_test(lambda o: y[o] @ y, plan, backend="threading")
+
+    def slow(o):  # about 0.2 ms per rearrangement: 0.6 s for the run, projected
+        time.sleep(2e-4 * o.shape[0])
+        return o[:, :3] @ y[:3]
+
+    monkeypatch.setattr(_workers, "SERIAL_SECONDS", 0.3)
+    res = permutation_test(slow, plan, backend="threading")
     cores = _workers.available_cores()
-    if cores > 1:  # the first batch ran here, the other 29 on the workers
-        assert spy.ranges == [(cores, range(1, 30))]
-    serial = permutation_test(lambda o: y[o] @ y, plan, n_jobs=1)
+    if cores > 1:  # every batch on the workers
+        assert spy.ranges == [(cores, range(0, 30))]
+    serial = permutation_test(slow, plan, n_jobs=1)
     np.testing.assert_array_equal(res.null_distribution, serial.null_distribution)
     spy.ranges.clear()
     with _workers.limit_cores(1):  # the project file's `cores = 1`
-        permutation_test(lambda o: y[o] @ y, plan, backend="threading")
+        permutation_test(slow, plan, backend="threading")
     assert spy.ranges == []
 
 
+def test_the_projection_of_one_worker_separates_set_up_from_work():
+    # A statistic costing a fixed 20 ms per call plus 0.1 ms per rearrangement: 10 batches of
+    # 100 take 10 x 20 ms + 1000 x 0.1 ms = 0.3 s on one worker (sleeps, so the projection
+    # is checked against the arithmetic; timer and scheduler noise allow 0.1 s).
+    plan = permutation_plan(10, n_resamples=1000, rng=0, batch_size=100)
+
+    def stat(o):
+        time.sleep(0.02 + 1e-4 * o.shape[0])
+        return np.zeros(o.shape[0])
+
+    seconds, first = _workers.one_worker_seconds(stat, plan)
+    assert seconds == pytest.approx(0.3, abs=0.1)
+    np.testing.assert_array_equal(first, plan.batch(0))  # batch 0, reused by the run
+
+
 def test_the_size_rule():
-    s = _workers.SERIAL_SECONDS
-    assert not _workers.should_spread(s / 10, 5, first=False)  # 0.5 s left: stay
-    assert _workers.should_spread(s / 2, 3, first=False)  # 1.5 s left: spread
-    # a first batch counts only when long enough not to be mostly kernel loading
-    assert not _workers.should_spread(s / 4, 100, first=True)
-    assert _workers.should_spread(s, 2, first=True)
-    assert not _workers.should_spread(10 * s, 0, first=False)  # nothing left
+    s, p = _workers.SERIAL_SECONDS, _workers.PROCESS_SECONDS
+    assert not _workers.should_spread(s / 2)
+    assert _workers.should_spread(2 * s)
+    assert p > s and not _workers.should_spread((s + p) / 2, processes=True)
+    assert _workers.should_spread(2 * p, processes=True)
 
 
 def test_none_takes_joblib_setting():
