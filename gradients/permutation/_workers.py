@@ -121,31 +121,49 @@ def kernel_request() -> tuple[bool, int | None]:
 def one_worker_seconds(statistic: Callable[[Any], Any], plan: Any) -> tuple[float, Any]:
     """Projected seconds of the whole run of ``plan`` on one worker, from a short timing.
 
-    Batch 0 is drawn (timed), then the statistic is evaluated on its first 2 rows (discarded:
-    this may load compiled kernels), on 4 rows and on 12 rows. The difference of the last two
-    gives the cost of one rearrangement, the rest the fixed cost of a call, so a statistic with
-    a large set-up per call is not mistaken for an expensive one. About 18 rearrangements of
-    extra work; none of it reaches the result. Returns the seconds and batch 0 (for reuse).
+    Batch 0 is drawn (timed; drawn again when that looked expensive, since the first draw
+    in a process may load the drawing kernel), then the statistic is evaluated on its first 2 rows (discarded:
+    this may load compiled kernels), on 4 rows and on 12 rows (each twice, the faster kept, so
+    that a pause of a busy machine does not decide). The difference of the last two gives the
+    cost of one rearrangement, the rest the fixed cost of a call, so a statistic with a large
+    set-up per call is not mistaken for an expensive one. About 34 rearrangements of extra
+    work; none of it reaches the result. Returns the seconds and batch 0 (for reuse).
     """
     nb = plan.n_batches
-    start = time.perf_counter()
-    rows = plan.batch(0)
-    draw = time.perf_counter() - start
+    rows, draw = _draw_on_one_thread(plan)
+    if nb * draw > SERIAL_SECONDS / 2:  # the first draw in a process may load its kernel
+        rows, draw = _draw_on_one_thread(plan)
     k = rows.shape[0]
     statistic(rows[: min(2, k)])
     if k < 16:  # a tiny batch: time it whole
         start = time.perf_counter()
         statistic(rows)
         return nb * (draw + time.perf_counter() - start), rows
-    start = time.perf_counter()
-    statistic(rows[:4])
-    t4 = time.perf_counter() - start
-    start = time.perf_counter()
-    statistic(rows[:12])
-    t12 = time.perf_counter() - start
+    t4 = min(_seconds(statistic, rows[:4]) for _ in range(2))
+    t12 = min(_seconds(statistic, rows[:12]) for _ in range(2))
     per_row = max(t12 - t4, 0.0) / 8
     per_call = max(t4 - 4 * per_row, 0.0)
     return nb * (draw + per_call) + plan.size * per_row, rows
+
+
+def _draw_on_one_thread(plan: Any) -> tuple[Any, float]:
+    """Batch 0 and the seconds it took, drawn on one thread as one worker draws."""
+    import numba
+
+    before = numba.get_num_threads()
+    numba.set_num_threads(1)
+    try:
+        start = time.perf_counter()
+        rows = plan.batch(0)
+        return rows, time.perf_counter() - start
+    finally:
+        numba.set_num_threads(before)
+
+
+def _seconds(statistic: Callable[[Any], Any], rows: Any) -> float:
+    start = time.perf_counter()
+    statistic(rows)
+    return time.perf_counter() - start
 
 
 def should_spread(one_worker: float, *, processes: bool = False) -> bool:

@@ -45,7 +45,7 @@ def _project(folder: Path, extra: str) -> Path:
     """The template project (the demo data) with few permutations and NMDS starts."""
     project = init_project(folder)
     text = project.read_text(encoding="utf-8")
-    text = re.sub(r"\[permutations\]\ncount = 999", "[permutations]\ncount = 49\n" + extra, text)
+    text = re.sub(r"\[permutations\]\ncount = 999", "[permutations]\ncount = 29\n" + extra, text)
     text = text.replace("dimensions = 2", "dimensions = 2\nstarts = 2")
     text += "\n[ranking]\npermutations = 19\nturnover_permutations = 9\n"
     project.write_text(text, encoding="utf-8")
