@@ -121,13 +121,14 @@ def kernel_request() -> tuple[bool, int | None]:
 def one_worker_seconds(statistic: Callable[[Any], Any], plan: Any) -> tuple[float, Any]:
     """Projected seconds of the whole run of ``plan`` on one worker, from a short timing.
 
-    Batch 0 is drawn (timed; drawn again when that looked expensive, since the first draw
-    in a process may load the drawing kernel), then the statistic is evaluated on its first 2 rows (discarded:
-    this may load compiled kernels), on 4 rows and on 12 rows (each twice, the faster kept, so
-    that a pause of a busy machine does not decide). The difference of the last two gives the
-    cost of one rearrangement, the rest the fixed cost of a call, so a statistic with a large
-    set-up per call is not mistaken for an expensive one. About 34 rearrangements of extra
-    work; none of it reaches the result. Returns the seconds and batch 0 (for reuse).
+    Batch 0 is drawn on one thread (timed; drawn again when that looked expensive, since the
+    first draw in a process may load the drawing kernel), then the statistic is evaluated on
+    its first 2 rows (discarded: this may load compiled kernels), on 4 rows and on 12 rows
+    (each twice, the faster kept, so that a pause of a busy machine does not decide). The
+    difference of the last two gives the cost of one rearrangement, the rest the fixed cost of
+    a call, so a statistic with a large set-up per call is not mistaken for an expensive one.
+    About 34 rearrangements of extra work; none of it reaches the result. Returns the seconds
+    and batch 0 (for reuse).
     """
     nb = plan.n_batches
     rows, draw = _draw_on_one_thread(plan)
