@@ -43,13 +43,16 @@ class TerminalProgress:
 
     One bar per task (the analysis name), counting what the caller counts (permutations for
     the engine), with the rate and the time left; a bar appears only once its task has run for
-    ``delay`` seconds and is cleared when the task is done.
+    ``delay`` seconds, is redrawn at most every ``interval`` seconds, and is cleared when the
+    task is done.
     """
 
-    def __init__(self, stream: TextIO | None = None, *, delay: float = 1.0) -> None:
+    def __init__(self, stream: TextIO | None = None, *, delay: float = 1.0,
+                 interval: float = 0.1) -> None:
         self.stream = stream if stream is not None else sys.stderr
         self.enabled = bool(getattr(self.stream, "isatty", lambda: False)())
         self.delay = delay
+        self.interval = interval
         self._bars: dict[str, Any] = {}
 
     def __call__(self, task: str, done: int, total: int) -> None:
@@ -62,8 +65,9 @@ class TerminalProgress:
         if bar is None:
             from tqdm import tqdm
 
-            bar = tqdm(total=total, desc=f"  {task[:40]}", unit="", unit_scale=True,
+            bar = tqdm(total=total, desc=f"  {task[:40]}", unit="",
                        file=self.stream, delay=self.delay, leave=False, dynamic_ncols=True,
+                       mininterval=self.interval, miniters=1,
                        bar_format="{desc}: {percentage:3.0f}%|{bar}| {n_fmt}/{total_fmt} "
                                   "[{elapsed}<{remaining}]")
             self._bars[task] = bar
