@@ -88,11 +88,15 @@ def seed_sequence(rng: RNGLike) -> np.random.SeedSequence:
     return np.random.SeedSequence(int(rng))
 
 
-def check_n_jobs(n_jobs: object) -> int:
-    """Return ``n_jobs`` as an int: a positive number of workers or threads, or -1 for all."""
+def check_n_jobs(n_jobs: object) -> int | None:
+    """Return ``n_jobs``: a positive number of workers, -1 (up to all cores, by the engine's
+    size rule) or None (the workers of an enclosing ``joblib.parallel_config``; one outside)."""
+    if n_jobs is None:
+        return None
     ok = isinstance(n_jobs, numbers.Integral) and not isinstance(n_jobs, bool)
     if not ok or int(n_jobs) == 0 or int(n_jobs) < -1:
-        raise InputError(f"`n_jobs` must be a positive integer or -1 (all cores); got {n_jobs!r}.")
+        raise InputError("`n_jobs` must be a positive integer or -1 (all cores), or None "
+                         f"(joblib's setting); got {n_jobs!r}.")
     return int(n_jobs)
 
 

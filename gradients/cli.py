@@ -2,11 +2,11 @@
 
 ::
 
-    gradients demo --out DIR [--force] [--permutations N] [--seed S]
+    gradients demo --out DIR [--force] [--permutations N] [--seed S] [--quiet]
     gradients init DIR
     gradients check FILE | --community C --environment E [--locations L] [--site-column S]
-    gradients run FILE [--out DIR] [--force]
-    gradients plan FILE [--sites 20,40,60,80] [--surveys N] [--out DIR] [--force]
+    gradients run FILE [--out DIR] [--force] [--quiet]
+    gradients plan FILE [--sites 20,40,60,80] [--surveys N] [--out DIR] [--force] [--quiet]
     gradients --version
 
 The command line only parses arguments and calls :mod:`gradients.report`. Problems with the
@@ -15,17 +15,18 @@ or written is such a problem, named with its path); unexpected errors exit with 
 hint. Ctrl-C exits with status 130 and SIGTERM with 143, each with one line and no half-written
 report folder. Warnings are printed as one line each, in words (a floating-point warning of a
 computation is counted, not printed raw). Long permutation runs show a progress bar when
-stderr is a terminal.
+stderr is a terminal (not with ``--quiet``).
 """
 
 from __future__ import annotations
 
 import argparse
+import contextlib
 import signal
 import sys
 import time
 import warnings
-from collections.abc import Sequence
+from collections.abc import Iterator, Sequence
 from typing import Any
 
 from . import __version__
@@ -65,6 +66,7 @@ def _parser() -> argparse.ArgumentParser:
     demo.add_argument("--permutations", type=int, default=None, metavar="N",
                       help="permutations per test (default 999)")
     demo.add_argument("--seed", type=int, default=1, metavar="S", help="random seed (default 1)")
+    demo.add_argument("--quiet", action="store_true", help="no progress bars")
 
     init = sub.add_parser("init", help="write a template project with the demo data",
                           description="Write a commented, runnable project file and a copy of "
@@ -92,6 +94,7 @@ def _parser() -> argparse.ArgumentParser:
                      help="report folder (default: `output.folder` of the project file)")
     run.add_argument("--force", action="store_true",
                      help="replace an existing report folder (only once the new one is done)")
+    run.add_argument("--quiet", action="store_true", help="no progress bars")
     plan = sub.add_parser("plan", help="how many sites a survey needs, by simulation",
                           description="Fit a generating model to the project's survey (the "
                                       "pilot), simulate surveys of each number of sites, and "
@@ -105,13 +108,25 @@ def _parser() -> argparse.ArgumentParser:
                       help="folder to write (default: `plan.folder` of the project file)")
     plan.add_argument("--force", action="store_true",
                       help="replace an existing plan folder (only once the new one is done)")
+    plan.add_argument("--quiet", action="store_true", help="no progress bar")
     return p
 
 
-def _progress() -> Any:
+@contextlib.contextmanager
+def _progress(quiet: bool = False) -> Iterator[None]:
+    """Progress bars on stderr when it is a terminal, none with ``--quiet``."""
     from .permutation import TerminalProgress, report_progress
 
-    return report_progress(TerminalProgress(sys.stderr))
+    if quiet:
+        with report_progress(None):
+            yield
+        return
+    bars = TerminalProgress(sys.stderr)
+    try:
+        with report_progress(bars):
+            yield
+    finally:
+        bars.close()
 
 
 def _cmd_demo(args: argparse.Namespace) -> int:
@@ -124,7 +139,7 @@ def _cmd_demo(args: argparse.Namespace) -> int:
     if args.seed < 0:
         raise InputError(f"--seed must be zero or a positive whole number; got {args.seed}.")
     start = time.perf_counter()
-    with _progress():
+    with _progress(getattr(args, "quiet", False)):
         folder = run_demo(args.out, force=args.force, n_resamples=n, rng=args.seed)
     print(f"Demo report written to {folder} in {time.perf_counter() - start:.0f} s.")
     print(f"Open {folder / 'report.html'} in a web browser.")
@@ -164,7 +179,7 @@ def _cmd_run(args: argparse.Namespace) -> int:
     from .report import run_project
 
     start = time.perf_counter()
-    with _progress():
+    with _progress(getattr(args, "quiet", False)):
         folder = run_project(args.project, out=args.out, force=args.force)
     print(f"Report written to {folder} in {time.perf_counter() - start:.0f} s.")
     print(f"Open {folder / 'report.html'} in a web browser.")
@@ -187,7 +202,7 @@ def _cmd_plan(args: argparse.Namespace) -> int:
     if args.surveys is not None and args.surveys < 1:
         raise InputError(f"--surveys must be a positive whole number; got {args.surveys}.")
     start = time.perf_counter()
-    with _progress():
+    with _progress(getattr(args, "quiet", False)):
         folder = plan_project(args.project, sites=_site_counts(args.sites), out=args.out,
                               force=args.force, surveys=args.surveys)
     print(f"Survey plan written to {folder} in {time.perf_counter() - start:.0f} s.")

@@ -66,9 +66,10 @@ def _entry_points(**kw):
 
 # --------------------------------------------------------------------------- n_jobs
 def test_n_jobs_rule():
-    # Common practice (joblib's convention): a positive number of workers, or -1 for all.
-    assert [check_n_jobs(v) for v in (1, 2, -1, np.int64(3))] == [1, 2, -1, 3]
-    for bad in (0, -2, 1.5, True, "2", None):
+    # Common practice (joblib's convention): a positive number of workers, -1 for all, None
+    # for the setting of an enclosing joblib.parallel_config.
+    assert [check_n_jobs(v) for v in (1, 2, -1, np.int64(3), None)] == [1, 2, -1, 3, None]
+    for bad in (0, -2, 1.5, True, "2"):
         with pytest.raises(InputError, match=r"`n_jobs` must be a positive integer or -1 "
                                              r"\(all cores\)"):
             check_n_jobs(bad)
@@ -83,7 +84,7 @@ def test_every_stage_refuses_a_bad_n_jobs_with_the_same_message(name):
     calls["permutation_test"] = lambda: permutation_test(lambda o: o[:, 0] * 1.0, plan,
                                                          n_jobs=0)
     with pytest.raises(InputError, match=r"^`n_jobs` must be a positive integer or -1 "
-                                         r"\(all cores\); got 0\.$"):
+                                         r"\(all cores\), or None \(joblib's setting\); got 0\.$"):
         calls[name]()
 
 

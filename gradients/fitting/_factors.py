@@ -107,7 +107,7 @@ def fit_factors(
     weights: pd.Series | np.ndarray | None = None,
     adjust: str | None = "holm",
     missing: str = "error",
-    n_jobs: int = 1,
+    n_jobs: int | None = -1,
 ) -> ClassCentroidsResult:
     """Fit site classes (factors) as centroids in ordination space, with permutation tests.
 
@@ -139,7 +139,10 @@ def fit_factors(
         Multiplicity adjustment across factors.
     missing : {'error', 'complete'}, default 'error'
         'complete' uses, for each factor, the sites where it is known.
-    n_jobs : int, default 1
+    n_jobs : int or None, default -1
+        Workers: -1 up to all cores by the engine's size rule, 1 one, ``k`` that many, None
+        the setting of an enclosing ``joblib.parallel_config`` (see
+        :func:`gradients.permutation.permutation_test`). The result does not depend on it.
 
     Returns
     -------

@@ -104,7 +104,7 @@ def fit_surface(
     basis_size: int | None = None,
     grid_size: int = 50,
     missing: str = "error",
-    n_jobs: int = 1,
+    n_jobs: int | None = -1,
 ) -> SurfaceFitResult:
     """Fit a smooth surface of one variable over two ordination axes.
 
@@ -146,8 +146,10 @@ def fit_surface(
         Points per side of the prediction grid over the sites' bounding box.
     missing : {'error', 'complete'}, default 'error'
         'complete' fits on the sites with a value.
-    n_jobs : int, default 1
-        Threads evaluating permutation batches.
+    n_jobs : int or None, default -1
+        Workers: -1 up to all cores by the engine's size rule, 1 one, ``k`` that many, None
+        the setting of an enclosing ``joblib.parallel_config`` (see
+        :func:`gradients.permutation.permutation_test`). The result does not depend on it.
 
     Returns
     -------

@@ -215,7 +215,7 @@ def fit_vectors(
     weights: pd.Series | np.ndarray | None = None,
     adjust: str | None = "holm",
     missing: str = "error",
-    n_jobs: int = 1,
+    n_jobs: int | None = -1,
 ) -> GradientArrowsResult:
     """Fit every numeric environmental variable as a vector onto ordination axes.
 
@@ -257,8 +257,10 @@ def fit_vectors(
         'error' refuses missing values, naming the variable and sites; 'complete' uses, for each
         variable, the sites where it was measured (``n`` then varies by variable and the
         permutations run over those sites).
-    n_jobs : int, default 1
-        Threads evaluating permutation batches (the kernels release the GIL).
+    n_jobs : int or None, default -1
+        Workers: -1 up to all cores by the engine's size rule, 1 one, ``k`` that many, None
+        the setting of an enclosing ``joblib.parallel_config`` (see
+        :func:`gradients.permutation.permutation_test`). The result does not depend on it.
 
     Returns
     -------

@@ -65,7 +65,7 @@ def anosim(
     strata: pd.Series | np.ndarray | list[object] | None = None,
     n_resamples: int = 999,
     rng: RNGLike = None,
-    n_jobs: int = 1,
+    n_jobs: int | None = -1,
 ) -> AnosimResult:
     """Test whether sites of a class are more alike than sites of different classes (ANOSIM).
 
@@ -84,8 +84,10 @@ def anosim(
     rng : int, numpy.random.Generator or None
         Source of randomness. When `rng` is None, a new `numpy.random.Generator` is created
         using entropy from the operating system.
-    n_jobs : int, default 1
-        Threads for the permutations; the result does not depend on it.
+    n_jobs : int or None, default -1
+        Workers: -1 up to all cores by the engine's size rule, 1 one, ``k`` that many, None
+        the setting of an enclosing ``joblib.parallel_config`` (see
+        :func:`gradients.permutation.permutation_test`). The result does not depend on it.
 
     Returns
     -------

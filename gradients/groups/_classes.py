@@ -12,7 +12,6 @@ import contextlib
 from collections.abc import Iterator
 from dataclasses import dataclass
 
-import numba
 import numpy as np
 import pandas as pd
 
@@ -20,6 +19,7 @@ from .._errors import InputError, format_items
 from .._validation import align_strata, seed_sequence
 from ..distance import DistanceMatrix, as_distance_matrix
 from ..permutation import PermutationPlan, permutation_plan
+from ..permutation._threads import numba_threads as _engine_threads
 
 __all__ = [
     "BATCH_SIZE",
@@ -193,16 +193,10 @@ def streams(rng: object, k: int) -> list[np.random.SeedSequence]:
 
 
 @contextlib.contextmanager
-def numba_threads(n_jobs: int) -> Iterator[None]:
-    """The compiled kernels in the block use ``n_jobs`` threads (-1: all), then restore."""
-    top = int(numba.config.NUMBA_NUM_THREADS)
-    want = top if n_jobs < 0 else max(1, min(int(n_jobs), top))
-    before = numba.get_num_threads()
-    numba.set_num_threads(want)
-    try:
+def numba_threads(n_jobs: int | None) -> Iterator[None]:
+    """The compiled kernels in the block follow ``n_jobs`` (the engine's rule), then restore."""
+    with _engine_threads(n_jobs):
         yield
-    finally:
-        numba.set_num_threads(before)
 
 
 def check_distances(d: object) -> DistanceMatrix:

@@ -216,7 +216,7 @@ def dispersion_test(
     strata: pd.Series | np.ndarray | list[object] | None = None,
     n_resamples: int = 999,
     rng: RNGLike = None,
-    n_jobs: int = 1,
+    n_jobs: int | None = -1,
     correction: str | None = None,
 ) -> DispersionResult:
     """Test whether site classes differ in spread: distances to class centroids (Anderson 2006).
@@ -236,8 +236,10 @@ def dispersion_test(
     rng : int, numpy.random.Generator or None
         Source of randomness. When `rng` is None, a new `numpy.random.Generator` is created
         using entropy from the operating system.
-    n_jobs : int, default 1
-        Workers (threads) for the permutations; the result does not depend on it.
+    n_jobs : int or None, default -1
+        Workers: -1 up to all cores by the engine's size rule, 1 one, ``k`` that many, None
+        the setting of an enclosing ``joblib.parallel_config`` (see
+        :func:`gradients.permutation.permutation_test`). The result does not depend on it.
     correction : {None, "lingoes", "cailliez"}, optional
         Make non-Euclidean dissimilarities Euclidean first (see
         :func:`gradients.distance.gower_centred`).

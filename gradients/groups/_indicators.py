@@ -197,7 +197,7 @@ def indicator_taxa(
     rng: RNGLike = None,
     strata: object = None,
     adjust: str | None = "fdr_bh",
-    n_jobs: int = 1,
+    n_jobs: int | None = -1,
 ) -> IndicatorTaxaResult:
     """Indicator value of every taxon for every site class, with permutation p-values.
 
@@ -225,9 +225,10 @@ def indicator_taxa(
         Multiplicity adjustment across taxa. Benjamini-Hochberg by default: a list of
         indicator taxa is a screening of many taxa, for which the false discovery rate is the
         usual guard; 'holm' controls the family-wise error rate instead.
-    n_jobs : int, default 1
-        Threads of the compiled kernel that evaluates the rearrangements (-1: all cores); the
-        result does not depend on it.
+    n_jobs : int or None, default -1
+        Workers: -1 up to all cores by the engine's size rule, 1 one, ``k`` that many, None
+        the setting of an enclosing ``joblib.parallel_config`` (see
+        :func:`gradients.permutation.permutation_test`). The result does not depend on it.
 
     Returns
     -------

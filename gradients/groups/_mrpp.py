@@ -69,7 +69,7 @@ def mrpp(
     strata: pd.Series | np.ndarray | list[object] | None = None,
     n_resamples: int = 999,
     rng: RNGLike = None,
-    n_jobs: int = 1,
+    n_jobs: int | None = -1,
 ) -> MrppResult:
     """Test whether sites of a class are closer to each other than chance gives (MRPP).
 
@@ -88,8 +88,10 @@ def mrpp(
     rng : int, numpy.random.Generator or None
         Source of randomness. When `rng` is None, a new `numpy.random.Generator` is created
         using entropy from the operating system.
-    n_jobs : int, default 1
-        Threads for the permutations; the result does not depend on it.
+    n_jobs : int or None, default -1
+        Workers: -1 up to all cores by the engine's size rule, 1 one, ``k`` that many, None
+        the setting of an enclosing ``joblib.parallel_config`` (see
+        :func:`gradients.permutation.permutation_test`). The result does not depend on it.
 
     Returns
     -------

@@ -133,7 +133,7 @@ def mantel_correlogram(
     min_pairs: int = DEFAULT_MIN_PAIRS,
     strata: Sequence[object] | pd.Series | None = None,
     scheme: str | PermutationPlan | None = None,
-    n_jobs: int = 1,
+    n_jobs: int | None = -1,
 ) -> MantelCorrelogramResult:
     r"""Mantel correlogram: how community resemblance changes across classes of distance.
 

@@ -100,7 +100,7 @@ def mantel(
     rng: RNGLike = None,
     strata: Sequence[object] | pd.Series | None = None,
     scheme: str | PermutationPlan | None = None,
-    n_jobs: int = 1,
+    n_jobs: int | None = -1,
     early_stop: int | None = None,
     spatial_null: object = None,
     n_surrogates: int = 999,
@@ -135,8 +135,10 @@ def mantel(
         (toroidal grids, blocks); a plan brings its own ``n_resamples``, ``rng`` and strata
         (``strata`` given beside a plan is an error). 'cyclic' and 'toroidal' shift the sites
         in the order of ``x``: put the matrices in transect or grid order first.
-    n_jobs : int, default 1
-        Threads for the compiled kernel (-1 for all cores). The result does not depend on it.
+    n_jobs : int or None, default -1
+        Workers: -1 up to all cores by the engine's size rule, 1 one, ``k`` that many, None
+        the setting of an enclosing ``joblib.parallel_config`` (see
+        :func:`gradients.permutation.permutation_test`). The result does not depend on it.
     early_stop : int, optional
         Stop once this many permuted statistics are at least as extreme as the observed one
         (Besag & Clifford 1991 sequential p-value), saving time when p is clearly large.

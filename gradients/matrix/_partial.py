@@ -115,7 +115,7 @@ def partial_mantel(
     rng: RNGLike = None,
     strata: Sequence[object] | pd.Series | None = None,
     scheme: str | PermutationPlan | None = None,
-    n_jobs: int = 1,
+    n_jobs: int | None = -1,
     early_stop: int | None = None,
     spatial_null: object = None,
     n_surrogates: int = 999,

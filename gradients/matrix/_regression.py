@@ -70,7 +70,7 @@ def matrix_regression(
     rng: RNGLike = None,
     strata: Sequence[object] | pd.Series | None = None,
     scheme: str | PermutationPlan | None = None,
-    n_jobs: int = 1,
+    n_jobs: int | None = -1,
 ) -> MatrixRegressionResult:
     r"""Multiple regression of one distance matrix on several others (MRM).
 

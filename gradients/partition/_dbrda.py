@@ -117,7 +117,7 @@ def dbrda(
     n_resamples: int = 999,
     rng: RNGLike = None,
     strata: object = None,
-    n_jobs: int = 1,
+    n_jobs: int | None = -1,
     correction: str | None = None,
 ) -> DbRDAResult:
     r"""Distance-based redundancy analysis (dbRDA) of community dissimilarities.
@@ -139,8 +139,10 @@ def dbrda(
         operating system.
     strata : sequence or Series, optional
         Permute only within these groups (a Series is matched by site label).
-    n_jobs : int, default 1
-        Workers (-1: all cores). Results do not depend on it.
+    n_jobs : int or None, default -1
+        Workers: -1 up to all cores by the engine's size rule, 1 one, ``k`` that many, None
+        the setting of an enclosing ``joblib.parallel_config`` (see
+        :func:`gradients.permutation.permutation_test`). The result does not depend on it.
     correction : {None, "lingoes", "cailliez"}, optional
         Make non-Euclidean dissimilarities Euclidean first (see
         :func:`gradients.distance.gower_centred`). Default: analyse as given, report the

@@ -98,7 +98,7 @@ def partition_variation(
     n_resamples: int = 999,
     rng: RNGLike = None,
     strata: object = None,
-    n_jobs: int = 1,
+    n_jobs: int | None = -1,
 ) -> VariationPartitionResult:
     """Partition the variation of community dissimilarities among two to four tables.
 

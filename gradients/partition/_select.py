@@ -103,7 +103,7 @@ def forward_select(
     n_resamples: int = 999,
     rng: RNGLike = None,
     strata: object = None,
-    n_jobs: int = 1,
+    n_jobs: int | None = -1,
 ) -> ForwardSelectionResult:
     """Forward selection of explanatory variables for a dbRDA, with the double stopping rule.
 

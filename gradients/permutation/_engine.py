@@ -17,6 +17,15 @@ from .._validation import check_alternative, check_n_jobs
 from ._plan import PermutationPlan
 from ._progress import current_reporter
 from ._pvalue import count_extreme, extreme_mask, pvalue_from_counts
+from ._workers import (
+    AUTO,
+    available_cores,
+    dask_client,
+    kernel_request,
+    one_worker_seconds,
+    resolve_request,
+    should_spread,
+)
 
 __all__ = ["PermutationResult", "permutation_test"]
 
@@ -86,7 +95,7 @@ def permutation_test(
     alternative: str = "greater",
     center: float | np.ndarray | None = None,
     early_stop: int | None = None,
-    n_jobs: int = 1,
+    n_jobs: int | None = -1,
     backend: str = "loky",
     task: str = "permutations",
 ) -> PermutationResult:
@@ -115,9 +124,16 @@ def permutation_test(
         at least as extreme as the observed one have been seen after ``L`` rearrangements, and
         report ``p = early_stop / L``. Saves time when p is clearly large. Batches are then run
         in order in this process.
-    n_jobs : int, default 1
-        Workers evaluating batches in parallel (joblib; -1 for all cores). The result does not
-        depend on it.
+    n_jobs : int or None, default -1
+        Workers evaluating batches. ``-1``: up to all cores, by the size rule (a run that
+        would take more than about a second on one worker, timed on a few rearrangements
+        first, is spread over the cores; see :mod:`gradients.permutation._workers`); ``1``:
+        one worker;
+        ``k``: ``k`` workers; ``None``: the workers of an enclosing ``joblib.parallel_config``
+        (one outside any). Inside ``joblib.parallel_config(backend="dask")`` with a
+        ``dask.distributed`` client the batches run on the cluster's workers. Inside a
+        kernel-thread block (``numba_threads``) the block's ``n_jobs`` decides and the workers
+        are the kernels' threads. The result never depends on it.
     backend : {'loky', 'threading'}, default 'loky'
         joblib backend; 'threading' suits statistics that release the GIL (BLAS, numba nogil).
     task : str
@@ -178,11 +194,12 @@ def permutation_test(
             "rearrangements with. Check the data for constant or missing values.")
 
     reporter = current_reporter()
-    nb = plan.n_batches
+    size, per_batch = plan.size, plan.batch_size
 
     def note(done: int) -> None:
+        # the engine counts batches; a reporter is told permutations
         if reporter is not None:
-            reporter(task, done, nb)
+            reporter(task, min(done * per_batch, size), size)
 
     with _one_blas_thread():
         return _run(statistic, plan, obs_vec, scalar, alternative, center, early_stop,
@@ -249,13 +266,7 @@ def _run(statistic: Statistic, plan: PermutationPlan, obs_vec: np.ndarray, scala
         null = np.concatenate(chunks, axis=0)
         used[~stopped] = null.shape[0]
     else:
-        if nb == 1:
-            parts = [_evaluate(statistic, plan, 0)]
-            note(1)
-        elif n_jobs == 1:
-            parts = _run_prefetching(statistic, plan, note)
-        else:
-            parts = _run_parallel(statistic, plan, n_jobs, backend, note)
+        parts = _run_batches(statistic, plan, n_jobs, backend, note)
         null = np.concatenate([_as_rows(p, obs_vec.size) for p in parts], axis=0)
 
     bad = np.isnan(null)
@@ -291,30 +302,88 @@ def _run(statistic: Statistic, plan: PermutationPlan, obs_vec: np.ndarray, scala
     )
 
 
-def _run_prefetching(statistic: Statistic, plan: PermutationPlan,
-                     note: Callable[[int], None]) -> list[np.ndarray]:
+def _run_batches(statistic: Statistic, plan: PermutationPlan, n_jobs: int | None,
+                 backend: str, note: Callable[[int], None]) -> list[np.ndarray]:
+    """Evaluate every batch, in order, on the workers ``n_jobs`` asks for (see ``_workers``)."""
+    nb = plan.n_batches
+    in_kernels, kernel_jobs = kernel_request()
+    asked = kernel_jobs if in_kernels else n_jobs
+    if asked != 1 and nb > 1:
+        client = dask_client()
+        if client is not None:
+            return _run_dask(client, statistic, plan, note)
+    request = resolve_request(asked)
+    # The workers are the compiled kernels' threads when the statistic runs on them (and the
+    # batches stay in this thread), otherwise joblib workers of `backend`.
+    pool = not (in_kernels and backend != "threading")
+    if pool and backend == "threading" and not _threads_may_share_kernels():
+        pool = False
+    if nb == 1 and pool:
+        pool, request = False, 1  # one batch: nothing to share between workers
+    if request != AUTO:
+        if request == 1 or not pool:
+            return _run_prefetching(statistic, plan, note)
+        return _run_parallel(statistic, plan, request, backend, note, range(nb))
+    cores = available_cores()
+    if cores == 1:
+        with _kernel_threads(1 if in_kernels else None):
+            return _run_prefetching(statistic, plan, note)
+    with _kernel_threads(1 if in_kernels else None):
+        serial, first = one_worker_seconds(statistic, plan)
+    if not should_spread(serial, processes=pool and backend != "threading"):
+        with _kernel_threads(1 if in_kernels else None):
+            return _run_prefetching(statistic, plan, note, first=first)
+    if pool:
+        return _run_parallel(statistic, plan, cores, backend, note, range(nb))
+    with _kernel_threads(cores if in_kernels else None):
+        return _run_prefetching(statistic, plan, note, first=first)
+
+
+@contextlib.contextmanager
+def _kernel_threads(n: int | None):  # type: ignore[no-untyped-def]
+    """This thread's compiled kernels on ``n`` threads inside the block (None: unchanged)."""
+    if n is None:
+        yield
+        return
+    import numba
+
+    before = numba.get_num_threads()
+    numba.set_num_threads(n)
+    try:
+        yield
+    finally:
+        numba.set_num_threads(before)
+
+
+def _run_prefetching(statistic: Statistic, plan: PermutationPlan, note: Callable[[int], None],
+                     first: np.ndarray | None = None) -> list[np.ndarray]:
     """Evaluate the batches in order in this thread while a helper thread draws the next one.
 
     Drawing random orders (a compiled kernel that releases the GIL) then overlaps with the
     statistic instead of alternating with it; the helper draws on one thread so that the two
-    share the cores. Enumerated and custom plans, whose batches are slices or Python draws,
-    and numba's 'workqueue' layer (see :func:`_threads_may_share_kernels`) run plainly.
+    share the cores. A single batch, enumerated and custom plans, whose batches are slices or
+    Python draws, and numba's 'workqueue' layer (see :func:`_threads_may_share_kernels`) run
+    plainly. ``first``: batch 0, already drawn (by the size rule's timing).
     """
     nb = plan.n_batches
     parts: list[np.ndarray] = []
-    if plan.exact or plan._draw is not None or not _threads_may_share_kernels():
+    if nb == 1 or plan.exact or plan._draw is not None or not _threads_may_share_kernels():
         for i in range(nb):
-            parts.append(_evaluate(statistic, plan, i))
+            rows = first if i == 0 and first is not None else plan.batch(i)
+            parts.append(_checked(statistic(rows), plan, i))
             note(i + 1)
         return parts
     from concurrent.futures import ThreadPoolExecutor
 
     with ThreadPoolExecutor(max_workers=1, thread_name_prefix="gradients-draw") as pool:
-        pending = pool.submit(_draw_one_thread, plan, 0)
+        pending = pool.submit(_draw_one_thread, plan, 1 if first is not None else 0)
         for i in range(nb):
-            orders = pending.result()
-            if i + 1 < nb:
-                pending = pool.submit(_draw_one_thread, plan, i + 1)
+            if i == 0 and first is not None:
+                orders = first
+            else:
+                orders = pending.result()
+                if i + 1 < nb:
+                    pending = pool.submit(_draw_one_thread, plan, i + 1)
             parts.append(_checked(statistic(orders), plan, i))
             note(i + 1)
     return parts
@@ -350,28 +419,27 @@ def _evaluate_many_one_thread(statistic: Statistic, plan: PermutationPlan,
         numba.set_num_threads(before)
 
 
-def _run_parallel(statistic: Statistic, plan: PermutationPlan, n_jobs: int, backend: str,
-                  note: Callable[[int], None]) -> list[np.ndarray]:
-    """Evaluate all batches on several workers, in order.
+def _chunks(indices: range, workers: int) -> list[range]:
+    """A few contiguous chunks of batches per worker, so that the statistic (which may hold
+    large arrays) is sent to each worker a few times rather than once per batch."""
+    n_chunks = min(len(indices), 4 * workers)
+    edges = np.linspace(indices.start, indices.stop, n_chunks + 1).round().astype(int)
+    return [range(int(a), int(b)) for a, b in itertools.pairwise(edges) if b > a]
 
-    Batches are grouped into a few contiguous chunks per worker, so that the statistic (which
-    may hold large arrays) is sent to each worker a few times rather than once per batch.
-    """
+
+def _run_parallel(statistic: Statistic, plan: PermutationPlan, n_jobs: int, backend: str,
+                  note: Callable[[int], None], indices: range) -> list[np.ndarray]:
+    """Evaluate the batches ``indices`` on several joblib workers, in order."""
     from joblib import Parallel, delayed, effective_n_jobs
 
     workers = max(1, effective_n_jobs(n_jobs))
-    if backend == "threading" and not _threads_may_share_kernels():
-        workers = 1
     parts: list[np.ndarray] = []
     if workers == 1:
-        for i in range(plan.n_batches):
+        for i in indices:
             parts.append(_evaluate(statistic, plan, i))
             note(i + 1)
         return parts
-    nb = plan.n_batches
-    n_chunks = min(nb, 4 * workers)
-    edges = np.linspace(0, nb, n_chunks + 1).round().astype(int)
-    chunks = [range(int(a), int(b)) for a, b in itertools.pairwise(edges) if b > a]
+    chunks = _chunks(indices, workers)
     runner = Parallel(n_jobs=workers, backend=backend, return_as="generator")
     task = _evaluate_many_one_thread if backend == "threading" else _evaluate_many
     for chunk, values in zip(chunks, runner(delayed(task)(statistic, plan, c)
@@ -379,6 +447,37 @@ def _run_parallel(statistic: Statistic, plan: PermutationPlan, n_jobs: int, back
         parts.extend(values)
         note(chunk.stop)
     return parts
+
+
+def _run_dask(client: object, statistic: Statistic, plan: PermutationPlan,
+              note: Callable[[int], None]) -> list[np.ndarray]:
+    """Evaluate every batch on the workers of a ``dask.distributed`` client.
+
+    The statistic (with the base matrices it holds) and the plan are scattered to every worker
+    once; each task then evaluates a contiguous chunk of batches, each drawn from its own
+    ``SeedSequence`` child exactly as here, and the chunks are put back in order.
+    """
+    from distributed import as_completed
+
+    nb = plan.n_batches
+    workers = max(1, sum(client.nthreads().values()))  # type: ignore[attr-defined]
+    chunks = _chunks(range(nb), workers)
+    stat_f, plan_f = client.scatter([statistic, plan], broadcast=True,  # type: ignore[attr-defined]
+                                    hash=False)
+    futures = [client.submit(_evaluate_many, stat_f, plan_f, c, pure=False)  # type: ignore[attr-defined]
+               for c in chunks]
+    position = {f.key: k for k, f in enumerate(futures)}
+    done: dict[int, list[np.ndarray]] = {}
+    finished = 0
+    try:
+        for future in as_completed(futures, loop=client.loop):  # type: ignore[attr-defined]
+            k = position[future.key]
+            done[k] = future.result()
+            finished += len(chunks[k])
+            note(finished)
+    finally:
+        client.cancel([*futures, stat_f, plan_f])  # type: ignore[attr-defined]
+    return [values for k in range(len(chunks)) for values in done[k]]
 
 
 def _threads_may_share_kernels() -> bool:

@@ -2,7 +2,8 @@
 
 Analyses never print. The command line installs a reporter with :func:`report_progress`; the
 engine tells the current reporter how many batches are done. With no reporter installed nothing
-is shown, so library use and non-terminal runs stay quiet.
+is shown, so library use and non-terminal runs stay quiet. The reporter is told
+``(task, done, total)``; the engine counts permutations.
 """
 
 from __future__ import annotations
@@ -10,9 +11,8 @@ from __future__ import annotations
 import contextlib
 import contextvars
 import sys
-import time
 from collections.abc import Callable, Iterator
-from typing import TextIO
+from typing import Any, TextIO
 
 __all__ = ["TerminalProgress", "current_reporter", "report_progress"]
 
@@ -39,36 +39,45 @@ def report_progress(reporter: Reporter | None) -> Iterator[None]:
 
 
 class TerminalProgress:
-    """A one-line progress bar on a terminal; silent when the stream is not a terminal.
+    """Progress bars on a terminal (``tqdm``); silent when the stream is not a terminal.
 
-    Only runs expected to take more than ``delay`` seconds show a bar.
+    One bar per task (the analysis name), counting what the caller counts (permutations for
+    the engine), with the rate and the time left; a bar appears only once its task has run for
+    ``delay`` seconds, is redrawn at most every ``interval`` seconds, and is cleared when the
+    task is done.
     """
 
     def __init__(self, stream: TextIO | None = None, *, delay: float = 1.0,
-                 width: int = 28) -> None:
+                 interval: float = 0.1) -> None:
         self.stream = stream if stream is not None else sys.stderr
         self.enabled = bool(getattr(self.stream, "isatty", lambda: False)())
         self.delay = delay
-        self.width = width
-        self._start: dict[str, float] = {}
-        self._shown = False
+        self.interval = interval
+        self._bars: dict[str, Any] = {}
 
     def __call__(self, task: str, done: int, total: int) -> None:
         if not self.enabled or total <= 0:
             return
-        now = time.perf_counter()
-        start = self._start.setdefault(task, now)
+        bar = self._bars.get(task)
+        if bar is not None and (bar.total != total or done < bar.n):
+            bar.close()  # a new run of the same task
+            bar = None
+        if bar is None:
+            from tqdm import tqdm
+
+            bar = tqdm(total=total, desc=f"  {task[:40]}", unit="",
+                       file=self.stream, delay=self.delay, leave=False, dynamic_ncols=True,
+                       mininterval=self.interval, miniters=1,
+                       bar_format="{desc}: {percentage:3.0f}%|{bar}| {n_fmt}/{total_fmt} "
+                                  "[{elapsed}<{remaining}]")
+            self._bars[task] = bar
+        bar.update(done - bar.n)
         if done >= total:
-            self._start.pop(task, None)
-            if self._shown:
-                self.stream.write("\r" + " " * (self.width + 60) + "\r")
-                self.stream.flush()
-                self._shown = False
-            return
-        if now - start < self.delay:
-            return
-        filled = int(self.width * done / total)
-        bar = "#" * filled + "." * (self.width - filled)
-        self.stream.write(f"\r  {task[:40]:<40} [{bar}] {100 * done // total:3d}%")
-        self.stream.flush()
-        self._shown = True
+            bar.close()
+            del self._bars[task]
+
+    def close(self) -> None:
+        """Clear any bar left open (a run that stopped early or failed)."""
+        for bar in self._bars.values():
+            bar.close()
+        self._bars.clear()

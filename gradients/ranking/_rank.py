@@ -172,7 +172,7 @@ def rank_variables(
     turnover_resamples: int = 99,
     rng: RNGLike = None,
     strata: object = None,
-    n_jobs: int = 1,
+    n_jobs: int | None = -1,
 ) -> VariableRankingResult:
     """Rank environmental variables by how well they line up with community turnover.
 
@@ -195,8 +195,10 @@ def rank_variables(
         operating system. Each analysis draws from its own child of one seed sequence.
     strata : Series or sequence, optional
         Group label per site: every permutation stays within groups.
-    n_jobs : int, default 1
-        Threads of the kernels and refits. Results do not depend on it.
+    n_jobs : int or None, default -1
+        Workers: -1 up to all cores by the engine's size rule, 1 one, ``k`` that many, None
+        the setting of an enclosing ``joblib.parallel_config`` (see
+        :func:`gradients.permutation.permutation_test`). The result does not depend on it.
 
     Returns
     -------

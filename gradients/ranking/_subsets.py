@@ -259,7 +259,7 @@ def subset_search(
     n_resamples: int = 199,
     rng: RNGLike = None,
     strata: object = None,
-    n_jobs: int = 1,
+    n_jobs: int | None = -1,
 ) -> SubsetSearchResult:
     """The subsets of environmental variables whose distances best match community turnover.
 
@@ -287,8 +287,10 @@ def subset_search(
         operating system.
     strata : Series or sequence, optional
         Group label per site: permutations stay within groups.
-    n_jobs : int, default 1
-        Threads of the compiled kernels (-1 for all cores). Results do not depend on it.
+    n_jobs : int or None, default -1
+        Workers: -1 up to all cores by the engine's size rule, 1 one, ``k`` that many, None
+        the setting of an enclosing ``joblib.parallel_config`` (see
+        :func:`gradients.permutation.permutation_test`). The result does not depend on it.
 
     Returns
     -------

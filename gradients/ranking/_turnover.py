@@ -170,7 +170,7 @@ def turnover_model(
     strata: object = None,
     backward: bool = False,
     alpha: float = 0.05,
-    n_jobs: int = 1,
+    n_jobs: int | None = -1,
 ) -> TurnoverModelResult:
     """Generalized dissimilarity model of community turnover along environmental gradients.
 
@@ -202,9 +202,10 @@ def turnover_model(
         retesting after each drop; the steps are in ``elimination``.
     alpha : float, default 0.05
         Level of the backward elimination.
-    n_jobs : int, default 1
-        Threads refitting permuted models (the linear algebra releases the GIL). The result
-        does not depend on it.
+    n_jobs : int or None, default -1
+        Workers: -1 up to all cores by the engine's size rule, 1 one, ``k`` that many, None
+        the setting of an enclosing ``joblib.parallel_config`` (see
+        :func:`gradients.permutation.permutation_test`). The result does not depend on it.
 
     Returns
     -------

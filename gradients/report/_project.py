@@ -46,7 +46,7 @@ GEOGRAPHY_METHODS = ("auto", "geodesic", "euclidean", "network")
 class Key:
     """One key of the project file: its type, default, allowed values and meaning."""
 
-    kind: str  # "str", "path", "int", "float", "number", "bool", "names", "choice",
+    kind: str  # "str", "path", "int", "float", "number", "bool", "names", "choice", "cores",
     # "compositions", "mapping", "counts"
     default: Any = None
     help: str = ""
@@ -220,6 +220,10 @@ SCHEMA: dict[str, dict[str, Key]] = {
         "count": Key("int", 999, "Number of permutations for every test.", minimum=1),
         "seed": Key("int", 1, "Seed of the random number generator: the same seed gives the "
                     "same p-values and byte-identical tables.", minimum=0),
+        "cores": Key("cores", "all", "Cores the permutation tests may use: \"all\" (by the "
+                     "engine's size rule) or a whole number; the tables do not depend on it."),
+        "cluster": Key("str", None, "Address of a Dask scheduler, e.g. \"tcp://10.0.0.5:8786\": "
+                       "permutation batches then run on its workers (needs the `dask` extra)."),
     },
     "plan": {  # `gradients plan`: survey power by simulation (gradients/planning)
         "sites": Key("counts", (20, 40, 60, 80), "Numbers of sites of the planned surveys "
@@ -310,6 +314,13 @@ def _check_value(section: str, name: str, key: Key, value: Any, base: Path) -> A
             hint = f" Did you mean {close[0]!r}?" if close else ""
             raise InputError(f"{where} must be one of {format_items(key.choices)}; got "
                              f"{value!r}.{hint}")
+        return value
+    if key.kind == "cores":
+        if value == "all":
+            return value
+        if not isinstance(value, int) or isinstance(value, bool) or value < 1:
+            raise InputError(f"{where} must be \"all\" or a whole number of cores, at least 1 "
+                             f"(e.g. {name} = 2); got {value!r}.")
         return value
     if key.kind == "bool":
         if not isinstance(value, bool):

@@ -16,6 +16,7 @@ from typing import Any
 import pandas as pd
 
 from .._errors import InputError
+from ._compute import computing
 from ._html import render_html
 from ._methods import methods_paragraph
 from ._model import Outcome
@@ -248,7 +249,8 @@ def analyse(survey: Any, *, settings: dict[str, Any] | None = None,
     full = ctx.settings
     hypotheses = ctx.hypotheses
     prepared.refuse()
-    run_steps(ctx, STEPS)
+    with computing(full) as compute:
+        run_steps(ctx, STEPS)
     decisions = [str(d) for d in getattr(ctx.survey, "log", ())]
     decisions += [str(d) for d in ctx.results.get("input_decisions", [])]
     strata = full["design.strata"]
@@ -277,6 +279,7 @@ def analyse(survey: Any, *, settings: dict[str, Any] | None = None,
         "hypotheses": _jsonable(hypotheses),
         "seed": ctx.seed,
         "permutations": ctx.n_resamples,
+        "compute": compute,
         "survey": {"n_sites": int(survey.community.shape[0]),
                    "n_taxa": int(survey.community.shape[1]),
                    "n_variables": int(env.shape[1]),

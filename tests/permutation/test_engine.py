@@ -199,7 +199,7 @@ def test_progress_reporter_sees_every_batch():
     plan = permutation_plan(10, n_resamples=500, rng=0, batch_size=100)
     with report_progress(lambda task, done, total: seen.append((task, done, total))):
         permutation_test(lambda o: o[:, 0].astype(float), plan, task="demo")
-    assert seen[-1] == ("demo", 5, 5) and len(seen) == 5
+    assert seen[-1] == ("demo", 500, 500) and len(seen) == 5  # told permutations, not batches
 
 
 @pytest.mark.parametrize(
