@@ -165,7 +165,7 @@ def survey_power(
     n_bootstrap: int = 0,
     jitter: float = 0.1,
     rng: RNGLike = None,
-    n_jobs: int = 1,
+    n_jobs: int | None = -1,
 ) -> SurveyPowerResult:
     """Power to detect each hypothesis with surveys of ``n_sites`` sites, by simulation.
 
@@ -206,8 +206,10 @@ def survey_power(
         When `rng` is None, a new `numpy.random.Generator` is created using entropy from the
         operating system. Survey ``i`` of size ``n`` draws from its own child of one
         :class:`~numpy.random.SeedSequence`, so the table does not depend on ``n_jobs``.
-    n_jobs : int, default 1
-        Threads of the permutation kernels (-1 for all cores).
+    n_jobs : int or None, default -1
+        Workers of each permutation test, as in :func:`gradients.permutation.permutation_test`
+        (-1: up to all cores by the engine's size rule, which keeps the short tests of a
+        simulated survey on one worker).
 
     Returns
     -------
