@@ -15,9 +15,9 @@ from ..distance import DistanceMatrix
 from ..permutation import SCHEMES, PermutationPlan, permutation_plan
 
 __all__ = [
+    "PRECISIONS",
     "MatrixLike",
     "align_matrices",
-    "PRECISIONS",
     "build_plan",
     "check_precision",
     "control_matrices",

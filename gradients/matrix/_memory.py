@@ -50,7 +50,7 @@ def mantel_memory(n_sites: int, *, n_resamples: int = 9999,
         core = max(4 * 4 * m, 2 * 4 * m + 2 * 8 * min(m, _BLOCK))
     total = core + batch_bytes(n_sites, n_resamples)
     if spatial:
-        return max(total, spatial_memory(n_sites) + (16 * m if item == 4 else 16 * m))
+        return max(total, spatial_memory(n_sites) + 16 * m)  # float64 x and y beside
     return total
 
 
