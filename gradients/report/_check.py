@@ -6,6 +6,7 @@ from pathlib import Path
 from typing import Any
 
 from ._geography import site_distances
+from ._memory import check_memory
 from ._project import Project, load_project, project_from_dict
 from ._run import check_hypotheses, read_project_survey
 
@@ -24,6 +25,7 @@ def check_project(path: str | Path) -> tuple[Any, Project]:
     check_hypotheses(project, survey)
     if survey.locations is not None:
         site_distances(project.settings, survey.locations)
+    check_memory(project, survey)
     return survey, project
 
 

@@ -15,6 +15,7 @@ import pandas as pd
 
 from .._errors import InputError
 from ._html import render_html
+from ._memory import check_memory
 from ._methods import methods_paragraph
 from ._model import Outcome
 from ._pipeline import Context, run_steps
@@ -278,6 +279,7 @@ def run_project(project: str | Path | Project, *, out: str | Path | None = None,
     OutputFolder(target, force=force)  # refuse early, before minutes of computation
     survey = read_project_survey(project)
     check_hypotheses(project, survey)
+    check_memory(project, survey)
     s = project.settings
     inputs = {"community": s["inputs.community"], "environment": s["inputs.environment"],
               "locations": s["inputs.locations"], "network": s["geography.network"]}
