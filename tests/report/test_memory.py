@@ -8,8 +8,7 @@ import pytest
 
 from gradients import InputError
 from gradients.matrix._memory import mantel_memory, partial_mantel_memory
-from gradients.report import init_project, load_project, run_project
-from gradients.report import _memory
+from gradients.report import _memory, init_project, load_project, run_project
 from gradients.report._check import check_project
 
 
