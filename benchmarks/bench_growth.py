@@ -113,8 +113,9 @@ def _analyses() -> dict[str, tuple[tuple[int, ...], bool, Callable[..., object]]
             s["community"], s["groups"], n_resamples=p, rng=1, n_jobs=-1)),
         "dbrda (3 predictors)": (cubic, True, lambda s, p: g.dbrda(
             s["d"], s["metals"], n_resamples=p, rng=1, n_jobs=-1)),
-        "rank_variables": (cubic if small[0] < 100 else (100, 200, 400), True, lambda s, p: g.rank_variables(
-            s["d"], s["env"].iloc[:, :6], n_resamples=p, rng=1, n_jobs=-1)),
+        "rank_variables": (cubic if small[0] < 100 else (100, 200, 400), True,
+                           lambda s, p: g.rank_variables(s["d"], s["env"].iloc[:, :6],
+                                                         n_resamples=p, rng=1, n_jobs=-1)),
     }
 
 
@@ -146,14 +147,14 @@ def run(only: set[str] | None) -> str:
         times, peaks = [], []
         for n in sizes:
             s = _survey(n)
-            t, m = _measure(lambda s=s: fn(s, PERMS))
+            t, m = _measure(lambda s=s, fn=fn: fn(s, PERMS))
             times.append(t)
             peaks.append(m)
             print(f"{name} n={n}: {t:.2f} s, {m / 2**20:.0f} MiB", flush=True)
         p_exp = ""
         if permuted:
             s = _survey(sizes[1])
-            t10, _ = _measure(lambda s=s: fn(s, 10 * PERMS + 9))
+            t10, _ = _measure(lambda s=s, fn=fn: fn(s, 10 * PERMS + 9))
             p_exp = f"{_slope([PERMS + 1, 10 * PERMS + 10], [times[1], t10]):.2f}"
             print(f"{name} n={sizes[1]}, P={10 * PERMS + 9}: {t10:.2f} s", flush=True)
         rows.append((name, sizes, times, peaks, _slope(list(sizes), times), p_exp))

@@ -32,10 +32,25 @@ from _survey_project import write_project  # noqa: E402
 RESULTS = HERE / "results_report.md"
 
 
-def _run(args: list[str], env: dict[str, str]) -> tuple[float, int]:
+#: Child start-up that sets ``n_jobs=-1`` as the default of every public analysis that has
+#: the keyword: what the report's steps get once the defaults are all cores (``--all-cores``).
+ALL_CORES = """
+import sys, gradients
+for name in gradients._EXPORTS:
+    f = getattr(gradients, name)
+    kw = getattr(f, "__kwdefaults__", None)
+    if kw and "n_jobs" in kw:
+        kw["n_jobs"] = -1
+from gradients.cli import main
+sys.exit(main(sys.argv[1:]))
+"""
+
+
+def _run(args: list[str], env: dict[str, str], all_cores: bool = False) -> tuple[float, int]:
     """Run the CLI in a child; return wall seconds and the child's peak RSS (bytes)."""
     start = time.perf_counter()
-    subprocess.run([sys.executable, "-m", "gradients.cli", *args], check=True, env=env)
+    head = ["-c", ALL_CORES] if all_cores else ["-m", "gradients.cli"]
+    subprocess.run([sys.executable, *head, *args], check=True, env=env)
     wall = time.perf_counter() - start
     peak = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss * 1024
     return wall, peak
@@ -48,6 +63,8 @@ def main() -> None:
     parser.add_argument("--demo", action="store_true", help="the bundled demo instead")
     parser.add_argument("--label", default="", help="free text for the table (code version)")
     parser.add_argument("--keep", default=None, help="folder to keep the report in")
+    parser.add_argument("--all-cores", action="store_true",
+                        help="every analysis defaults to n_jobs=-1 in the child")
     a = parser.parse_args()
     env = dict(os.environ)
     load0 = os.getloadavg()[0]
@@ -71,11 +88,12 @@ def main() -> None:
                 loaded = load_project(project)
                 estimate = run_memory(loaded.settings, a.sites,
                                       n_hypotheses=len(loaded.hypotheses)).total
-        wall, peak = _run(args, env)
+        wall, peak = _run(args, env, a.all_cores)
         info = json.loads((out / "run.json").read_text(encoding="utf-8"))
     load1 = os.getloadavg()[0]
     timings = info.get("timings", {})
-    lines = [f"\n### {what}{' - ' + a.label if a.label else ''}\n",
+    label = ", ".join(t for t in (a.label, "n_jobs=-1 defaults" if a.all_cores else "") if t)
+    lines = [f"\n### {what}{' - ' + label if label else ''}\n",
              f"{time.strftime('%Y-%m-%d %H:%M')}; {platform.machine()}, {os.cpu_count()} cores "
              f"shared; 1-minute load average {load0:.1f} before, {load1:.1f} after. "
              f"Wall time {wall:.1f} s (interpreter start and writing included); peak resident "
