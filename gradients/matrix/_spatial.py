@@ -20,12 +20,7 @@ References
 
 from __future__ import annotations
 
-import hashlib
-import threading
-from collections import OrderedDict
-from collections.abc import Callable
 from dataclasses import dataclass
-from typing import Any
 
 import numpy as np
 import pandas as pd
@@ -36,6 +31,7 @@ from scipy.spatial.distance import pdist, squareform
 from .._errors import InputError
 from .._validation import check_labels_match
 from ..distance import DistanceMatrix
+from ..distance._recent import Recent
 from ..ordination import pcoa
 
 __all__ = [
@@ -161,49 +157,14 @@ def spatial_weights(distances: np.ndarray) -> np.ndarray:
     return w
 
 
-class _Recent:
-    """The last few results of an expensive, pure function of one array, by its content.
-
-    Every Mantel-type test of a report run builds the same Moran eigenvector maps (one
-    ``n x n`` eigenproblem of the same spatial weights) and the simple and partial tests of a
-    hypothesis take the principal coordinates of the same matrix: the second and later calls
-    get the first one's arrays (read-only), bit for bit what a new computation would give.
-    The key is a digest of the array's bytes, so a changed array is never mistaken for
-    another.
-    """
-
-    def __init__(self, size: int) -> None:
-        self.size = size
-        self._items: OrderedDict[tuple[object, ...], Any] = OrderedDict()
-        self._lock = threading.Lock()
-
-    def __call__(self, function: Callable[[np.ndarray], Any], array: np.ndarray) -> Any:
-        a = np.ascontiguousarray(array)
-        key = (function.__name__, a.dtype.str, a.shape,
-               hashlib.blake2b(a.view(np.uint8).reshape(-1), digest_size=20).digest())
-        with self._lock:
-            if key in self._items:
-                self._items.move_to_end(key)
-                return self._items[key]
-        value = function(array)
-        for v in value if isinstance(value, tuple) else (value,):
-            if isinstance(v, np.ndarray):
-                v.flags.writeable = False
-        with self._lock:
-            self._items[key] = value
-            while len(self._items) > self.size:
-                self._items.popitem(last=False)
-        return value
-
-    def clear(self) -> None:
-        with self._lock:
-            self._items.clear()
-
-
+#: Every Mantel-type test of a report run builds the same Moran eigenvector maps (one ``n x n``
+#: eigenproblem of the same spatial weights), and the simple and partial tests of a hypothesis
+#: take the principal coordinates of the same matrix: computed once (see
+#: :mod:`gradients.distance._recent`).
 #: Moran eigenvector maps of the last spatial weights (one per run: one geography).
-_RECENT_MAPS = _Recent(1)
+_RECENT_MAPS = Recent(1)
 #: Principal coordinates of the last few matrices given as ``x`` (one per hypothesis).
-_RECENT_COORDINATES = _Recent(8)
+_RECENT_COORDINATES = Recent(8)
 
 
 def mem_basis(w: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
