@@ -181,11 +181,19 @@ def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--only", default="", help="comma-separated parts of analysis names")
     parser.add_argument("--write-docs", action="store_true")
+    parser.add_argument("--sizes", default="",
+                        help="three sizes for the quadratic analyses (default 100,1000,5000)")
+    parser.add_argument("--cubic-sizes", default="",
+                        help="three sizes for the cubic ones (default 100,500,2000)")
     parser.add_argument("--quick", action="store_true",
                         help="tiny sizes and 49 permutations: checks the script, times nothing")
     a = parser.parse_args()
+    global SMALL, CUBIC, PERMS
+    if a.sizes:
+        SMALL = tuple(int(v) for v in a.sizes.split(","))
+    if a.cubic_sizes:
+        CUBIC = tuple(int(v) for v in a.cubic_sizes.split(","))
     if a.quick:
-        global SMALL, CUBIC, PERMS
         SMALL = CUBIC = (30, 45, 60)
         PERMS = 49
     only = {o.strip() for o in a.only.split(",") if o.strip()} or None
