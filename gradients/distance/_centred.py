@@ -171,15 +171,13 @@ def gower_centred(
     dm = as_distance_matrix(d, name="d")
     if correction is not None:
         check_choice("correction", correction, CENTRED_CORRECTIONS)
-    # every dbRDA, selection step and PERMANOVA of a run centres the same community matrix:
-    # once, with its eigenvalues (a cached property of the shared, frozen result)
+    # centred once per matrix for a whole run, eigenvalues included (see ._recent)
     key = ("gower", correction, digest(dm.condensed), str(dm.labels.dtype),
            tuple(dm.labels.tolist()), dm.metric, dm.transform)
     return _RECENT_CENTRED.get(key, lambda: _gower_centred(dm, correction))
 
 
-#: Gower matrices of the last two distance matrices centred (the community's, mostly).
-_RECENT_CENTRED = Recent(2)
+_RECENT_CENTRED = Recent(2)  # the last two matrices centred (the community's, mostly)
 
 
 def _gower_centred(dm: DistanceMatrix, correction: str | None) -> GowerMatrix:
