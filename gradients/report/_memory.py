@@ -3,9 +3,11 @@
 The run keeps every distance matrix it builds (the community, one per hypothesis, the
 covariables and geography: one condensed float64 vector each) and, one step at a time, the
 work arrays of the step that is running. The peak is the kept matrices plus the largest
-step, plus the interpreter with the suite's libraries loaded. The Mantel-family counts come
+step, plus the interpreter with the suite's libraries, kernels and figures (``BASELINE``). The Mantel-family counts come
 from :mod:`gradients.matrix._memory`; the other steps hold a few square ``n x n`` arrays
-(ordination, PERMANOVA, the spatial eigenvector maps), counted here as ``SQUARE_ARRAYS``.
+(ordination, PERMANOVA, the spatial eigenvector maps), counted here as ``SQUARE_ARRAYS``;
+the ranking step's turnover model holds a design of ``SPLINES`` columns per variable for every
+pair of sites.
 """
 
 from __future__ import annotations
@@ -19,11 +21,16 @@ from ..matrix._memory import mantel_memory, partial_mantel_memory
 
 __all__ = ["RunMemory", "available_memory", "check_memory", "run_memory"]
 
-#: Resident size of the interpreter with numpy, scipy, pandas, geopandas, numba and
-#: matplotlib loaded, measured on Linux (about 300 MB).
-BASELINE = 300 * 2**20
+#: Resident size of a run before its matrices count: the interpreter with the libraries
+#: loaded (283 MiB measured on Linux), compiled kernels, figures and tables; the demo's whole
+#: run (60 sites) peaked at 517 MiB.
+BASELINE = 500 * 2**20
 #: Square float64 arrays held at once by the steps other than the Mantel family.
 SQUARE_ARRAYS = 8
+#: I-spline columns per variable of the ranking step's turnover model (its default).
+SPLINES = 3
+#: Copies of the turnover model's pairs x columns design held at once while it is fitted.
+DESIGN_COPIES = 3
 #: Share of the available memory a run may plan to use (the rest is the system's margin).
 HEADROOM = 0.9
 
@@ -45,8 +52,9 @@ class RunMemory:
 
 
 def run_memory(settings: dict[str, Any], n_sites: int, *,
-               n_hypotheses: int | None = None) -> RunMemory:
-    """Estimate the peak memory of a run of a project's ``settings`` on ``n_sites`` sites."""
+               n_hypotheses: int | None = None, n_variables: int = 0) -> RunMemory:
+    """Estimate the peak memory of a run of a project's ``settings`` on ``n_sites`` sites
+    (``n_variables`` numeric environmental variables, for the ranking step)."""
     n = int(n_sites)
     m = n * (n - 1) // 2
     perms = int(settings.get("permutations.count", 999))
@@ -65,6 +73,11 @@ def run_memory(settings: dict[str, Any], n_sites: int, *,
     if settings.get("analyses.regression", True):
         p = hyp + int(geo) + int(cov)
         steps["regression"] = 3 * (p + 1) * 8 * m
+    if settings.get("analyses.ranking", True) and n_variables:
+        # the turnover model's design: SPLINES I-spline columns per variable (and geography)
+        # for every pair of sites, held with its working copies
+        columns = SPLINES * (n_variables + int(geo)) + 1
+        steps["ranking"] = DESIGN_COPIES * columns * 8 * m
     largest = max(steps, key=lambda k: steps[k])
     return RunMemory(total=BASELINE + kept + steps[largest], kept=kept, largest_step=largest,
                      steps=steps)
@@ -93,7 +106,9 @@ def check_memory(project: Any, survey: Any, *, available: int | None = None) -> 
     returned unchecked.
     """
     n = int(survey.community.shape[0])
-    estimate = run_memory(project.settings, n, n_hypotheses=len(project.hypotheses))
+    numeric = survey.environment.select_dtypes("number").shape[1]
+    estimate = run_memory(project.settings, n, n_hypotheses=len(project.hypotheses),
+                          n_variables=numeric)
     free = available_memory() if available is None else available
     if free is None or estimate.total <= HEADROOM * free:
         return estimate
