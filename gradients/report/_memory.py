@@ -5,9 +5,9 @@ covariables and geography: one condensed float64 vector each) and, one step at a
 work arrays of the step that is running. The peak is the kept matrices plus the largest
 step, plus the interpreter with the suite's libraries, kernels and figures (``BASELINE``).
 The Mantel-family counts come from :mod:`gradients.matrix._memory`; the other steps hold a
-few square ``n x n`` arrays (ordination, PERMANOVA, the spatial eigenvector maps), counted here as ``SQUARE_ARRAYS``;
-the ranking step's turnover model holds a design of ``SPLINES`` columns per variable for every
-pair of sites.
+few square ``n x n`` arrays (ordination, PERMANOVA, the spatial eigenvector maps), counted
+here as ``SQUARE_ARRAYS``; the ranking step's turnover model holds a design of ``SPLINES``
+columns per variable for every pair of sites.
 """
 
 from __future__ import annotations
