@@ -24,6 +24,7 @@ from .._errors import InputError
 from .._result import ResultMixin
 from .._validation import check_choice
 from ._matrix import DistanceMatrix, as_distance_matrix
+from ._recent import Recent, digest
 
 __all__ = [
     "CENTRED_CORRECTIONS",
@@ -170,6 +171,16 @@ def gower_centred(
     dm = as_distance_matrix(d, name="d")
     if correction is not None:
         check_choice("correction", correction, CENTRED_CORRECTIONS)
+    # centred once per matrix for a whole run, eigenvalues included (see ._recent)
+    key = ("gower", correction, digest(dm.condensed), str(dm.labels.dtype),
+           tuple(dm.labels.tolist()), dm.metric, dm.transform)
+    return _RECENT_CENTRED.get(key, lambda: _gower_centred(dm, correction))
+
+
+_RECENT_CENTRED = Recent(2)  # the last two matrices centred (the community's, mostly)
+
+
+def _gower_centred(dm: DistanceMatrix, correction: str | None) -> GowerMatrix:
     if dm.n < 2:
         raise InputError(f"A centred matrix needs at least 2 sites; the distance matrix has "
                          f"{dm.n}.")

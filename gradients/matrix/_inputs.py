@@ -15,9 +15,11 @@ from ..distance import DistanceMatrix
 from ..permutation import SCHEMES, PermutationPlan, permutation_plan
 
 __all__ = [
+    "PRECISIONS",
     "MatrixLike",
     "align_matrices",
     "build_plan",
+    "check_precision",
     "control_matrices",
     "rank_condensed",
     "square_of",
@@ -118,16 +120,55 @@ def control_matrices(z: object) -> dict[str, object]:
     )
 
 
-def standardise(v: np.ndarray, name: str) -> np.ndarray:
-    """Centre a condensed vector and scale it to unit length (so r is a plain dot product)."""
-    c = np.asarray(v, dtype=np.float64) - float(np.mean(v))
-    norm = float(np.sqrt(c @ c))
+def standardise(v: np.ndarray, name: str, dtype: np.dtype | type = np.float64) -> np.ndarray:
+    """Centre a condensed vector and scale it to unit length (so r is a plain dot product).
+
+    The mean and length are computed in float64; with ``dtype=np.float32`` the result is
+    stored in float32, computed block by block so that no float64 copy of the whole vector
+    is made (see :data:`PRECISIONS`).
+    """
+    if np.dtype(dtype) == np.float64:
+        c = np.asarray(v, dtype=np.float64) - float(np.mean(v))
+        norm = float(np.sqrt(c @ c))
+        _check_spread(norm, v, name)
+        return c / norm
+    mean = float(np.mean(v, dtype=np.float64))
+    squares = 0.0
+    for lo in range(0, v.size, _BLOCK):
+        c = np.asarray(v[lo:lo + _BLOCK], dtype=np.float64) - mean
+        squares += float(c @ c)
+    norm = float(np.sqrt(squares))
+    _check_spread(norm, v, name)
+    out = np.empty(v.size, dtype=dtype)
+    for lo in range(0, v.size, _BLOCK):
+        out[lo:lo + _BLOCK] = (np.asarray(v[lo:lo + _BLOCK], dtype=np.float64) - mean) / norm
+    return out
+
+
+#: Entries per block when a float32 vector is standardised without a float64 copy.
+_BLOCK = 1 << 20
+
+#: Storage types the Mantel family accepts as ``dtype``.
+PRECISIONS = (np.dtype(np.float64), np.dtype(np.float32))
+
+
+def check_precision(dtype: object) -> np.dtype:
+    """The storage type of a Mantel-family test: float64 (default) or float32."""
+    try:
+        dt = np.dtype(np.float64 if dtype is None else dtype)
+    except TypeError:
+        raise InputError(f"`dtype` must be float64 or float32; got {dtype!r}.") from None
+    if dt not in PRECISIONS:
+        raise InputError(f"`dtype` must be float64 or float32; got {dt}.")
+    return dt
+
+
+def _check_spread(norm: float, v: np.ndarray, name: str) -> None:
     if not np.isfinite(norm) or norm <= 1e-300 or norm <= 1e-13 * float(np.max(np.abs(v))):
         raise InputError(
             f"`{name}` has the same value for every pair of sites, so no correlation with it "
             "is defined. Check that the right matrix was passed."
         )
-    return c / norm
 
 
 def rank_condensed(v: np.ndarray) -> np.ndarray:
@@ -135,9 +176,10 @@ def rank_condensed(v: np.ndarray) -> np.ndarray:
     return stats.rankdata(v, method="average").astype(np.float64)
 
 
-def square_of(c: np.ndarray) -> np.ndarray:
-    """C-ordered float64 square matrix from a condensed vector (zero diagonal)."""
-    return np.ascontiguousarray(squareform(np.asarray(c, dtype=np.float64), checks=False))
+def square_of(c: np.ndarray, dtype: np.dtype | type = np.float64) -> np.ndarray:
+    """C-ordered square matrix (float64, or ``dtype``) from a condensed vector (zero
+    diagonal)."""
+    return np.ascontiguousarray(squareform(np.asarray(c, dtype=dtype), checks=False))
 
 
 def build_plan(

@@ -78,7 +78,9 @@ def _cross_one(x: np.ndarray, y: np.ndarray, orders: np.ndarray) -> np.ndarray: 
             s2 = 0.0
             s3 = 0.0
             for j in range(i + 1, n):
-                xv = x[off + j]
+                # float64 product even for float32 storage: the product of two float32
+                # values is exact in float64, so storage rounding is the only error
+                xv = np.float64(x[off + j])
                 s0 += xv * r0[p0[j]]
                 s1 += xv * r1[p1[j]]
                 s2 += xv * r2[p2[j]]
@@ -107,7 +109,7 @@ def _cross_many(x: np.ndarray, y: np.ndarray, orders: np.ndarray) -> np.ndarray:
         for i in range(n - 1):
             row = y[p[i]]
             for j in range(i + 1, n):
-                v = row[p[j]]
+                v = np.float64(row[p[j]])
                 for c in range(q):
                     acc[c] += x[t, c] * v
                 t += 1
@@ -124,7 +126,9 @@ def cross_products(x: np.ndarray, y: np.ndarray, orders: np.ndarray) -> np.ndarr
     x : ndarray, shape (m,) or (m, q)
         Fixed condensed vector(s), ``m = n (n - 1) / 2``, squareform order.
     y : ndarray, shape (n, n)
-        Symmetric square matrix (C order, float64) whose rows and columns are permuted.
+        Symmetric square matrix (C order) whose rows and columns are permuted. ``x`` and
+        ``y`` are float64, or both float32 to halve their memory; the products and sums
+        are float64 either way.
     orders : ndarray, shape (k, n)
         Site orders from the permutation engine.
 

@@ -9,6 +9,7 @@ import numpy as np
 import pandas as pd
 from scipy import stats
 
+from .._errors import InputError
 from .._result import ResultMixin
 from .._validation import RNGLike, check_choice, check_rng
 from ..permutation import PermutationPlan
@@ -16,6 +17,7 @@ from ._inputs import (
     MatrixLike,
     align_matrices,
     build_plan,
+    check_precision,
     rank_condensed,
     standardise,
 )
@@ -28,6 +30,7 @@ from ._mantel_core import (
     mantel_pearson,
     pearson_side,
 )
+from ._precision import float32_bound, float32_note
 from ._spatial_check import NOT_CHECKED, spatial_check
 
 __all__ = ["KENDALL_MAX_WORK", "METHODS", "MantelResult", "mantel"]
@@ -104,6 +107,7 @@ def mantel(
     early_stop: int | None = None,
     spatial_null: object = None,
     n_surrogates: int = 999,
+    dtype: type | np.dtype | None = None,
 ) -> MantelResult:
     r"""Mantel test: correlation between two distance matrices, tested by permutation.
 
@@ -149,6 +153,12 @@ def mantel(
         spatial structure and a p-value under a spatially constrained null (see Notes).
     n_surrogates : int, default 999
         Number of spatial surrogates for ``pvalue_spatial``.
+    dtype : {numpy.float64, numpy.float32}, optional
+        Storage of the permuted matrix and the standardised vectors (default float64).
+        float32 halves the memory of the test (for large ``n``); products and sums stay
+        float64, and the result's notes give the bound on the difference from float64 and
+        whether it can touch the p-value (see Notes). Pearson and Spearman only; the spatial
+        part is computed in float64.
 
     Returns
     -------
@@ -179,6 +189,15 @@ def mantel(
     Moran eigenvector maps (the same signs for every coordinate), which keeps each
     coordinate's Moran's I and their covariance exactly. The surrogate distance matrices are
     correlated with the fixed ``y``.
+
+    **float32 storage.** With ``u = 2**-24``, storing the unit-length vectors in float32
+    moves ``r`` by at most ``2u + u^2`` (Cauchy-Schwarz; float32 products are exact in
+    float64); distances that were themselves built in float32 add ``2u kappa`` per matrix,
+    ``kappa = sqrt(1 + mean^2/sd^2)`` of its entries; float64 summation adds at most
+    ``4 n 2**-53``. Permutations keep mean and spread, so the same bound ``eps`` holds for
+    every permuted ``r``, and with the same ``rng`` the p-value can differ from the float64
+    one only through permuted values within ``2 eps`` of the observed ``r`` (derivation in
+    ``gradients.matrix._precision``; checked against float64 runs in the tests).
 
     References
     ----------
@@ -212,11 +231,18 @@ def mantel(
     method = check_choice("method", method, METHODS)
     alternative, n_resamples, n_jobs, n_surrogates = check_common(
         alternative, n_resamples, n_jobs, n_surrogates)
+    precision = check_precision(dtype)
+    if precision == np.float32 and method == "kendall":
+        raise InputError("`dtype=float32` applies to method='pearson' or 'spearman'; Kendall's "
+                         "tau works on integer ranks and has no float storage to halve.")
     gen = check_rng(rng)
     mats, labels = align_matrices({"x": x, "y": y})
     n = len(labels)
-    xv = mats["x"].condensed.astype(np.float64)
-    yv = mats["y"].condensed.astype(np.float64)
+    if precision == np.float64:
+        xv = mats["x"].condensed.astype(np.float64)
+        yv = mats["y"].condensed.astype(np.float64)
+    else:  # as stored: no float64 copy of the condensed vectors
+        xv, yv = mats["x"].condensed, mats["y"].condensed
     plan = build_plan(n, scheme=scheme, strata=strata,
                       n_resamples=n_resamples, rng=gen, labels=labels)
     if method == "kendall":
@@ -224,12 +250,18 @@ def mantel(
                                        early_stop=early_stop, n_jobs=n_jobs)
     else:
         observed, res = mantel_pearson(xv, yv, plan, method=method, alternative=alternative,
-                                       early_stop=early_stop, n_jobs=n_jobs)
+                                       early_stop=early_stop, n_jobs=n_jobs, dtype=precision)
     notes = exact_note(plan, n) + early_stop_note(res, early_stop)
+    if precision == np.float32:
+        ranked = method == "spearman"
+        eps = float32_bound(xv, yv, n, ranked=ranked)
+        notes.append(float32_note(eps, observed, res.null_distribution, int(res.n_resamples),
+                                  ranked_float32=ranked and np.float32 in (xv.dtype, yv.dtype)))
     extra: dict[str, object] = {}
     if spatial_null is None:
         notes.append(NOT_CHECKED)
     else:
+        xv, yv = xv.astype(np.float64, copy=False), yv.astype(np.float64, copy=False)
         extra = spatial_check(xv, yv, _surrogate_statistic(yv, method), spatial_null, labels,
                               n, n_resamples, n_surrogates, alternative, gen, n_jobs, notes)
     return MantelResult(

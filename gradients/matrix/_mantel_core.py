@@ -62,19 +62,31 @@ def exact_note(plan: PermutationPlan, n: int) -> list[str]:
     return []
 
 
-def pearson_side(v: np.ndarray, method: str, name: str) -> np.ndarray:
-    """Condensed vector made ready for a Pearson kernel: ranked for Spearman, standardised."""
-    return standardise(rank_condensed(v) if method == "spearman" else v, name)
+def pearson_side(v: np.ndarray, method: str, name: str,
+                 dtype: np.dtype | type = np.float64) -> np.ndarray:
+    """Condensed vector made ready for a Pearson kernel: ranked for Spearman, standardised
+    (stored as ``dtype``)."""
+    return standardise(rank_condensed(v) if method == "spearman" else v, name, dtype)
 
 
 def mantel_pearson(x: np.ndarray, y: np.ndarray, plan: PermutationPlan, *, method: str,
                    alternative: str, early_stop: int | None, n_jobs: int,
-                   names: tuple[str, str] = ("x", "y")) -> tuple[float, PermutationResult]:
-    """Pearson or Spearman Mantel test of condensed x and y, permuting y."""
-    xs = pearson_side(x, method, names[0])
-    ys = pearson_side(y, method, names[1])
-    big = square_of(ys)
-    observed = float(np.clip(xs @ ys, -1.0, 1.0))
+                   names: tuple[str, str] = ("x", "y"),
+                   dtype: np.dtype | type = np.float64) -> tuple[float, PermutationResult]:
+    """Pearson or Spearman Mantel test of condensed x and y, permuting y.
+
+    With ``dtype=np.float32`` the standardised vectors and the square matrix are stored in
+    float32 (half the memory); products and sums stay float64 (the kernel's).
+    """
+    xs = pearson_side(x, method, names[0], dtype)
+    ys = pearson_side(y, method, names[1], dtype)
+    big = square_of(ys, dtype)
+    if np.dtype(dtype) == np.float64:
+        observed = float(np.clip(xs @ ys, -1.0, 1.0))
+    else:  # the identity order through the kernel: float64 products of the stored values
+        observed = float(np.clip(cross_products(xs, big, np.arange(big.shape[0])[None, :])[0],
+                                 -1.0, 1.0))
+    del ys
     # Over all n! orders each pair of sites is mapped to every other pair equally often, so
     # the permutation mean of sum x_c y_perm is 0 exactly (Mantel 1967): the known centre.
     center = 0.0 if plan.scheme == "free" else None

@@ -16,6 +16,7 @@ from ._inputs import (
     MatrixLike,
     align_matrices,
     build_plan,
+    check_precision,
     control_matrices,
     rank_condensed,
     square_of,
@@ -23,6 +24,7 @@ from ._inputs import (
 )
 from ._kernels import cross_products
 from ._mantel_core import check_common, early_stop_note, exact_note, run_engine
+from ._precision import FLOAT32_UNIT, float32_note
 from ._spatial_check import NOT_CHECKED, spatial_check
 
 __all__ = ["PARTIAL_METHODS", "PERMUTE", "PartialMantelResult", "partial_mantel"]
@@ -119,6 +121,7 @@ def partial_mantel(
     early_stop: int | None = None,
     spatial_null: object = None,
     n_surrogates: int = 999,
+    dtype: type | np.dtype | None = None,
 ) -> PartialMantelResult:
     r"""Partial Mantel test: association of ``x`` and ``y`` controlling for ``z``.
 
@@ -143,6 +146,11 @@ def partial_mantel(
     alternative, n_resamples, rng, strata, scheme, n_jobs, early_stop, spatial_null, \
 n_surrogates
         As in :func:`mantel`. The spatial null randomises ``x``, keeping ``y`` and ``z``.
+    dtype : {numpy.float64, numpy.float32}, optional
+        Storage of the permuted matrix and of the fixed residual vectors (default float64);
+        float32 halves the memory of the permutation kernel's inputs. The fit on the controls
+        is float64 either way; the notes give the bound on the difference from float64 (see
+        Notes).
 
     Returns
     -------
@@ -187,6 +195,15 @@ n_surrogates
     orthonormal basis of the centred controls, the statistic of a permuted vector ``v`` is
     ``v.e_y / (|e_y| sqrt(|v|^2 - |Q'v|^2))``.
 
+    **float32 storage.** Each cross product moves by at most ``delta = 2u + u^2 +
+    4 n 2**-53`` (``u = 2**-24``) relative to the lengths of its two vectors, as in
+    :func:`mantel`. Writing ``w^2 = 1 - |Q'v|^2 / |v|^2`` for the share of a permuted ``v``
+    left unexplained by the controls, the statistic moves by at most, to first order,
+    ``eps = delta (1/w + |r| sqrt(k) / w^2)`` for ``k`` controls; the notes give ``eps`` with
+    the smallest ``w`` and largest ``|r|`` met in the run. The bound covers the storage
+    rounding of float64 inputs; inputs already stored in float32 are residualised in float64
+    from their stored values.
+
     Spatially structured data make partial Mantel tests too liberal [4]_ (see
     :func:`mantel`); with ``spatial_null`` the surrogates are Moran spectral randomisations of
     ``x``. For testing the role of space itself, analyses on the raw data (constrained
@@ -223,6 +240,7 @@ n_surrogates
     """
     method = check_choice("method", method, PARTIAL_METHODS)
     permute = check_choice("permute", permute, PERMUTE)
+    precision = check_precision(dtype)
     alternative, n_resamples, n_jobs, n_surrogates = check_common(
         alternative, n_resamples, n_jobs, n_surrogates)
     gen = check_rng(rng)
@@ -263,12 +281,15 @@ n_surrogates
 
     v = (xv - xv.mean()) if permute == "raw" else e_x
     vv = float(v @ v)
-    fixed = np.column_stack([e_y, resid.q])
-    big = square_of(v)
+    fixed = np.column_stack([e_y, resid.q]).astype(precision, copy=False)
+    big = square_of(v, precision)
+    unexplained = [1.0]  # smallest share of a permuted v left by the controls (float32 note)
 
     def statistic(orders: np.ndarray) -> np.ndarray:
         c = cross_products(fixed, big, orders)
         res2 = np.maximum(vv - np.sum(c[:, 1:] ** 2, axis=1), 1e-300)
+        if precision == np.float32 and res2.size:
+            unexplained[0] = min(unexplained[0], float(res2.min()) / vv)
         return c[:, 0] / (ey_norm * np.sqrt(res2))
 
     plan = build_plan(n, scheme=scheme, strata=strata,
@@ -276,6 +297,12 @@ n_surrogates
     res = run_engine(statistic, plan, observed=observed, alternative=alternative, center=None,
                      early_stop=early_stop, n_jobs=n_jobs, task="partial Mantel test")
     notes = exact_note(plan, n) + early_stop_note(res, early_stop)
+    if precision == np.float32:
+        w = float(np.sqrt(max(unexplained[0], 1e-300)))
+        top = float(max(abs(observed), np.max(np.abs(res.null_distribution), initial=0.0)))
+        delta = 2.0 * FLOAT32_UNIT + FLOAT32_UNIT ** 2 + 4.0 * n * 2.0 ** -53
+        eps = delta * (1.0 / w + top * np.sqrt(len(names)) / w ** 2)
+        notes.append(float32_note(eps, observed, res.null_distribution, int(res.n_resamples)))
     notes.append(
         "Permutation of the raw x (Mantel's approach): the null also breaks the relation of x "
         "with the controls; permute='residuals' keeps it (Legendre 2000)." if permute == "raw"

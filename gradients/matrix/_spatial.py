@@ -31,6 +31,7 @@ from scipy.spatial.distance import pdist, squareform
 from .._errors import InputError
 from .._validation import check_labels_match
 from ..distance import DistanceMatrix
+from ..distance._recent import Recent
 from ..ordination import pcoa
 
 __all__ = [
@@ -156,6 +157,16 @@ def spatial_weights(distances: np.ndarray) -> np.ndarray:
     return w
 
 
+#: Every Mantel-type test of a report run builds the same Moran eigenvector maps (one ``n x n``
+#: eigenproblem of the same spatial weights), and the simple and partial tests of a hypothesis
+#: take the principal coordinates of the same matrix: computed once (see
+#: :mod:`gradients.distance._recent`).
+#: Moran eigenvector maps of the last spatial weights (one per run: one geography).
+_RECENT_MAPS = Recent(1)
+#: Principal coordinates of the last few matrices given as ``x`` (one per hypothesis).
+_RECENT_COORDINATES = Recent(8)
+
+
 def mem_basis(w: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Moran's eigenvector maps: orthonormal eigenvectors of ``H W H`` orthogonal to 1.
 
@@ -163,6 +174,10 @@ def mem_basis(w: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     eigenvectors are computed in an explicit orthonormal basis of the complement of the
     constant vector, so all ``n - 1`` of them are centred even when eigenvalues repeat.
     """
+    return _RECENT_MAPS(_mem_basis, w)
+
+
+def _mem_basis(w: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     n = w.shape[0]
     # orthonormal basis of the centred subspace (Householder-free: QR of centred identity)
     q, _ = np.linalg.qr(np.eye(n)[:, : n - 1] - 1.0 / n)
@@ -192,7 +207,10 @@ def principal_coordinates(condensed: np.ndarray) -> tuple[np.ndarray, float]:
     the coordinates on the axes with positive eigenvalues and the sum of the magnitudes of the
     negative eigenvalues as a fraction of the sum of the positive ones (0 when Euclidean).
     """
-    values = np.asarray(condensed, dtype=np.float64)
+    return _RECENT_COORDINATES(_principal_coordinates, np.asarray(condensed, dtype=np.float64))
+
+
+def _principal_coordinates(values: np.ndarray) -> tuple[np.ndarray, float]:
     m = values.size
     n = int(np.rint((1 + np.sqrt(1 + 8 * m)) / 2))
     result = pcoa(DistanceMatrix(values, range(n), validate=False))

@@ -135,7 +135,14 @@ class PreflightError(InputError):
 #: with the prepared context; each adds findings with :meth:`Context.warn` or raises
 #: :class:`InputError`. The place for checks that depend on the size of the job, not its
 #: inputs.
-RESOURCE_CHECKS: list[StepFunction] = []
+def memory_check(ctx: Context) -> None:
+    """Refuse a run that will not fit in this machine's memory (:mod:`._memory`)."""
+    from ._memory import check_memory
+
+    check_memory(ctx, ctx.survey)  # reads the context's settings and hypotheses
+
+
+RESOURCE_CHECKS: list[StepFunction] = [memory_check]
 
 
 @dataclass(frozen=True)
