@@ -65,6 +65,9 @@ def main() -> None:
     parser.add_argument("--keep", default=None, help="folder to keep the report in")
     parser.add_argument("--all-cores", action="store_true",
                         help="every analysis defaults to n_jobs=-1 in the child")
+    parser.add_argument("--off", default="", metavar="NAME,...",
+                        help="analyses switched off ([analyses] NAME = false), e.g. "
+                             "partition,ranking,groups for the analyses a run had before them")
     a = parser.parse_args()
     env = dict(os.environ)
     load0 = os.getloadavg()[0]
@@ -78,8 +81,18 @@ def main() -> None:
             from gradients.report._project import load_project
 
             project = write_project(Path(tmp) / "project", a.sites, permutations=a.permutations)
+            off = [v.strip() for v in a.off.split(",") if v.strip()]
+            if off:
+                text = project.read_text(encoding="utf-8")
+                text = text.replace("[analyses]\n", "[analyses]\n"
+                                    + "".join(f"{v} = false\n" for v in off), 1)
+                project.write_text(text, encoding="utf-8")
+                what_off = f", {', '.join(off)} off"
+            else:
+                what_off = ""
             args = ["run", str(project), "--out", str(out), "--force"]
-            what = f"simulated survey, {a.sites} sites, {a.permutations} permutations"
+            what = (f"simulated survey, {a.sites} sites, {a.permutations} permutations"
+                    + what_off)
             try:
                 from gradients.report._memory import run_memory
             except ImportError:  # a build from before the estimate, for comparison

@@ -139,6 +139,8 @@ def memory_check(ctx: Context) -> None:
     """Refuse a run that will not fit in this machine's memory (:mod:`._memory`)."""
     from ._memory import check_memory
 
+    if getattr(ctx.survey, "community", None) is None:
+        return  # a context without a survey (steps run on results given by hand)
     check_memory(ctx, ctx.survey)  # reads the context's settings and hypotheses
 
 
