@@ -321,7 +321,9 @@ def nmds(
     else:
         from joblib import Parallel, delayed
 
-        runs = Parallel(n_jobs=n_jobs, prefer="threads")(
+        # threads on this machine, even inside a Dask `parallel_config`: the starts share
+        # the monotone order, and their kernels release the GIL for part of the work
+        runs = Parallel(n_jobs=n_jobs, backend="threading")(
             delayed(_run_start)(x0, mono, max_iter, tol) for x0 in configs
         )
     stresses = np.array([r[1] for r in runs])

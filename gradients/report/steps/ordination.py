@@ -38,7 +38,12 @@ def ordinate(ctx: Context) -> object:
     d = ctx.results["community"]
     k = ctx.settings["analyses.dimensions"]
     if ctx.settings["analyses.ordination"] == "nmds":
-        return nmds(d, dimensions=k, starts=ctx.settings["analyses.starts"], rng=ctx.rng("nmds"))
+        from ...permutation._workers import available_cores
+
+        # the starts side by side on the cores the run may use (`[permutations] cores`); each
+        # start has its own seed, so the result does not depend on how many run at once
+        return nmds(d, dimensions=k, starts=ctx.settings["analyses.starts"], rng=ctx.rng("nmds"),
+                    n_jobs=available_cores())
     return pcoa(d, dimensions=k)
 
 
