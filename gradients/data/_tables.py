@@ -32,6 +32,9 @@ def parse_community(table: SiteTable) -> pd.DataFrame:
             f"{cap(raw.source)} holds only the site column; a community table needs one column "
             "per taxon.", file=raw.path,
         )
+    values = _plain_counts(data, raw.decimal_comma)
+    if values is not None:
+        return _community_frame(values, data)
     values = np.empty(data.shape)
     text_cells: list[tuple[int, str, str]] = []
     censored: list[tuple[int, str, str]] = []
@@ -76,6 +79,32 @@ def parse_community(table: SiteTable) -> pd.DataFrame:
             "site).",
             file=raw.path, sites=sites(negative), columns=columns(negative),
         )
+    return _community_frame(values, data)
+
+
+def _plain_counts(data: pd.DataFrame, decimal_comma: bool) -> np.ndarray | None:
+    """The abundances when every cell is text of a non-negative number, else None.
+
+    Each distinct text is read once (with :func:`parse_column`, so exactly as cell by cell) and
+    the values are spread back to the cells: a count table holds few distinct texts. Any other
+    table (numbers held as numbers, or a cell that is not a non-negative number) returns None
+    and is read column by column, which finds and reports the bad cells.
+    """
+    cells = data.to_numpy(dtype=object).ravel()
+    if cells.size == 0:
+        return None
+    # a cell that is not text (a number, None, NaN) is not equal to any text, so it would be
+    # one of the distinct values
+    codes, distinct = pd.factorize(cells, use_na_sentinel=False)
+    if pd.api.types.infer_dtype(distinct, skipna=False) != "string":
+        return None
+    pc = parse_column(pd.Series(distinct, dtype=object), decimal_comma=decimal_comma)
+    if not np.all(pc.kinds == NUMBER) or np.any(pc.values < 0):
+        return None
+    return pc.values[codes].reshape(data.shape)
+
+
+def _community_frame(values: np.ndarray, data: pd.DataFrame) -> pd.DataFrame:
     community = pd.DataFrame(values, index=data.index.copy(), columns=pd.Index(data.columns))
     if np.all(values == np.round(values)) and np.all(values < 2.0**53):
         community = community.astype(np.int64)
