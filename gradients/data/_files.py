@@ -231,10 +231,12 @@ def _rows_to_frame(
             columns=list(dupes),
         )
     if all(len(r) == width for r, _ in body):
-        # every row as wide as the header (the usual case): one object array, no row copies
-        cells: object = np.empty((len(body), width), dtype=object)
+        # every row as wide as the header (the usual case): one object array, no row copies,
+        # held column by column (as the frame holds it, so that columns are taken without a copy)
+        by_column = np.empty((width, len(body)), dtype=object)
         for i, (r, _) in enumerate(body):
-            cells[i] = r  # type: ignore[index]
+            by_column[:, i] = r
+        cells: object = by_column.T
     else:
         cells = [list(r[:width]) + [""] * (width - len(r)) for r, _ in body]
     frame = pd.DataFrame(cells, columns=header, dtype=object, copy=False)
