@@ -19,7 +19,7 @@ import pytest
 
 from gradients import InputError
 from gradients.data import read_survey
-from gradients.data._cells import NUMBER, parse_column
+from gradients.data._cells import NUMBER, decimal_marks, parse_column
 from gradients.data._files import _rows_to_frame, _split_unquoted
 
 
@@ -134,3 +134,17 @@ def test_distinct_texts_read_as_the_column_reader_reads_them():
         alone = parse_column(pd.Series([text], dtype=object))
         assert alone.kinds[0] == kind == NUMBER
         assert alone.values[0] == value == float(text)
+
+
+def test_decimal_marks_by_distinct_text_equal_the_column_loop():
+    # reference: the cells sorted by hand (a decimal comma: '0,5', ' <1,25', ',5'; a decimal
+    # point: '1.5', '<0.1', '.5'; neither: '2', 'abc', ''), listed column by column
+    frame = pd.DataFrame({"a": ["0,5", "1.5", "2", " <1,25"], "b": ["abc", "<0.1", ",5", ".5"],
+                          "c": ["", "2", "2", "0,5"]}, dtype=object)
+    comma, point = decimal_marks(frame)
+    assert comma == [(0, "a"), (3, "a"), (2, "b"), (3, "c")]
+    assert point == [(1, "a"), (1, "b"), (3, "b")]
+    # a table with a cell that is not text is looked at column by column, with the same lists
+    mixed = frame.copy()
+    mixed.loc[1, "c"] = None
+    assert decimal_marks(mixed) == (comma, point)
