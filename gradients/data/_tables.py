@@ -90,11 +90,12 @@ def _plain_counts(data: pd.DataFrame, decimal_comma: bool) -> pd.DataFrame | Non
     table (numbers held as numbers, or a cell that is not a non-negative number) returns None
     and is read column by column, which finds and reports the bad cells.
     """
+    if data.size == 0 or not all(pd.api.types.is_object_dtype(d) or isinstance(d, pd.StringDtype)
+                                 for d in data.dtypes):
+        return None  # numbers already held as numbers are read column by column, without copies
     block = data.to_numpy(dtype=object)
     order = "F" if block.flags.f_contiguous else "C"  # the order the cells are held in
     cells = block.ravel(order=order)
-    if cells.size == 0:
-        return None
     # a missing cell (None, NaN) has code -1; any other cell that is not text (a number) is
     # not equal to any text, so it is one of the distinct values
     codes, distinct = pd.factorize(cells)
