@@ -62,15 +62,46 @@ def decimal_marks(cells: pd.DataFrame) -> tuple[list[tuple[int, object]], list[t
 
     Returns two lists of (row position, column) pairs; censored cells (``<0,5``) count too.
     """
+    marks = _marks_by_distinct_text(cells)
+    if marks is not None:
+        return marks
     comma: list[tuple[int, object]] = []
     point: list[tuple[int, object]] = []
     for column in cells.columns:
-        text = cells[column].astype("string").str.strip().str.lstrip("<").str.strip()
-        is_point = text.str.match(_DECIMAL_POINT_RE.pattern).fillna(False).to_numpy(dtype=bool)
-        is_comma = text.str.match(_DECIMAL_COMMA_RE.pattern).fillna(False).to_numpy(dtype=bool)
+        is_point, is_comma = _marks(cells[column])
         point.extend((int(i), column) for i in np.flatnonzero(is_point))
         comma.extend((int(i), column) for i in np.flatnonzero(is_comma))
     return comma, point
+
+
+def _marks(column: pd.Series) -> tuple[np.ndarray, np.ndarray]:
+    """Which cells of one column are written with a decimal point, and with a decimal comma."""
+    text = column.astype("string").str.strip().str.lstrip("<").str.strip()
+    is_point = text.str.match(_DECIMAL_POINT_RE.pattern).fillna(False).to_numpy(dtype=bool)
+    is_comma = text.str.match(_DECIMAL_COMMA_RE.pattern).fillna(False).to_numpy(dtype=bool)
+    return is_point, is_comma
+
+
+def _marks_by_distinct_text(
+    cells: pd.DataFrame,
+) -> tuple[list[tuple[int, object]], list[tuple[int, object]]] | None:
+    """:func:`decimal_marks` for a table whose cells are all text, each distinct text looked at
+    once (a large table holds few distinct texts); None for any other table."""
+    block = cells.to_numpy(dtype=object)
+    order = "F" if block.flags.f_contiguous else "C"  # the order the cells are held in
+    flat = block.ravel(order=order)
+    if flat.size == 0:
+        return None
+    codes, distinct = pd.factorize(flat)  # a missing cell has code -1
+    if codes.min() < 0 or pd.api.types.infer_dtype(distinct, skipna=False) != "string":
+        return None
+    is_point, is_comma = _marks(pd.Series(distinct, dtype=object))
+    out = []
+    for found in (is_comma, is_point):
+        # column by column, rows in order within a column, as the loop over columns gives
+        cols, rows = np.nonzero(found[codes].reshape(block.shape, order=order).T)
+        out.append([(int(i), cells.columns[j]) for j, i in zip(cols, rows, strict=True)])
+    return out[0], out[1]
 
 
 def _to_float(text: str, decimal_comma: bool) -> float:

@@ -93,8 +93,7 @@ def _column_names(raw: RawTable) -> pd.DataFrame:
     if "" in names:
         raise InputError(f"{cap(raw.source)} has a column with no name; name every column.",
                          file=raw.path)
-    frame = frame.copy()
-    frame.columns = names
+    frame = frame.set_axis(names, axis=1)  # a new frame; its cells are copied when written
     return frame
 
 
@@ -141,8 +140,7 @@ def _extract_sites(raw: RawTable, column: str | None) -> SiteTable:
             "merge the repeated rows (e.g. sum or average replicates) or give them distinct IDs.",
             file=raw.path, sites=list(dupes),
         )
-    data = data.copy()
-    data.index = pd.Index(labels, name="site", dtype=object)
+    data = data.set_axis(pd.Index(labels, name="site", dtype=object), axis=0)
     return SiteTable(raw=raw, data=data, positions={s: p[0] for s, p in positions.items()})
 
 

@@ -32,6 +32,9 @@ def parse_community(table: SiteTable) -> pd.DataFrame:
             f"{cap(raw.source)} holds only the site column; a community table needs one column "
             "per taxon.", file=raw.path,
         )
+    plain = _plain_counts(data, raw.decimal_comma)
+    if plain is not None:
+        return plain
     values = np.empty(data.shape)
     text_cells: list[tuple[int, str, str]] = []
     censored: list[tuple[int, str, str]] = []
@@ -76,8 +79,49 @@ def parse_community(table: SiteTable) -> pd.DataFrame:
             "site).",
             file=raw.path, sites=sites(negative), columns=columns(negative),
         )
+    return _community_frame(values, data)
+
+
+def _plain_counts(data: pd.DataFrame, decimal_comma: bool) -> pd.DataFrame | None:
+    """The community when every cell is text of a non-negative number, else None.
+
+    Each distinct text is read once (with :func:`parse_column`, so exactly as cell by cell) and
+    the values are spread back to the cells: a count table holds few distinct texts. Any other
+    table (numbers held as numbers, or a cell that is not a non-negative number) returns None
+    and is read column by column, which finds and reports the bad cells.
+    """
+    if data.size == 0 or not all(pd.api.types.is_object_dtype(d) or isinstance(d, pd.StringDtype)
+                                 for d in data.dtypes):
+        return None  # numbers already held as numbers are read column by column, without copies
+    block = data.to_numpy(dtype=object)
+    order = "F" if block.flags.f_contiguous else "C"  # the order the cells are held in
+    cells = block.ravel(order=order)
+    # a missing cell (None, NaN) has code -1; any other cell that is not text (a number) is
+    # not equal to any text, so it is one of the distinct values
+    codes, distinct = pd.factorize(cells)
+    if codes.min() < 0 or pd.api.types.infer_dtype(distinct, skipna=False) != "string":
+        return None
+    pc = parse_column(pd.Series(distinct, dtype=object), decimal_comma=decimal_comma)
+    if not np.all(pc.kinds == NUMBER) or np.any(pc.values < 0):
+        return None
+    distinct_values = pc.values
+    if _whole(distinct_values):  # the cells are whole exactly when the distinct values are
+        distinct_values = distinct_values.astype(np.int64)
+    values = distinct_values[codes].reshape(block.shape, order=order)
+    community = pd.DataFrame(values, index=data.index.copy(), columns=pd.Index(data.columns),
+                             copy=False)
+    community.columns.name = "taxon"
+    return community
+
+
+def _whole(values: np.ndarray) -> bool:
+    """True when every value is a whole number held exactly as int64 (below 2**53)."""
+    return bool(np.all(values == np.round(values)) and np.all(values < 2.0**53))
+
+
+def _community_frame(values: np.ndarray, data: pd.DataFrame) -> pd.DataFrame:
     community = pd.DataFrame(values, index=data.index.copy(), columns=pd.Index(data.columns))
-    if np.all(values == np.round(values)) and np.all(values < 2.0**53):
+    if _whole(values):
         community = community.astype(np.int64)
     community.columns.name = "taxon"
     return community
