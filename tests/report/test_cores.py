@@ -120,3 +120,23 @@ def test_quiet_installs_no_progress_reporter(tmp_path: Path,
     assert main(["run", str(project), "--quiet"]) == 0
     assert main(["run", str(project)]) == 0
     assert seen[0] is None and seen[1] is not None
+
+
+def test_every_permutation_test_of_a_run_follows_the_cores_setting(
+        tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    """No step of the report pins its tests to one worker: each reaches the engine asking for
+    ``-1`` (the size rule within ``[permutations] cores``). A step that passed ``n_jobs=1``
+    would still write the same tables (the test above) but leave the other cores idle."""
+    from gradients.permutation import _engine
+
+    asked: list[int | None] = []
+    real = _engine.resolve_request
+
+    def spy(n_jobs: int | None) -> int:
+        asked.append(n_jobs)
+        return real(n_jobs)
+
+    monkeypatch.setattr(_engine, "resolve_request", spy)
+    _run(_project(tmp_path / "p", 'cores = "all"'), tmp_path / "r")
+    assert len(asked) > 20  # every section's tests went through the engine
+    assert set(asked) == {-1}, sorted(set(asked), key=str)

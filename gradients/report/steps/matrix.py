@@ -125,11 +125,12 @@ def _spatial_check(sec: Section, results: dict[str, Any], label: str) -> None:
 
 
 def mantel_results(ctx: Context, *, spatial: bool = True, early_stop: int | None = None,
-                   n_jobs: int = 1) -> dict[str, Any]:
+                   n_jobs: int | None = -1) -> dict[str, Any]:
     """The Mantel test of each predictor (hypotheses and geography) as the report runs it.
 
     ``spatial=False`` leaves out the spatially constrained null; ``early_stop`` and ``n_jobs``
-    go to :func:`gradients.mantel` (the survey planner re-runs the tests with them).
+    go to :func:`gradients.mantel` (the survey planner re-runs the tests with them). The
+    report keeps the engine's default ``n_jobs=-1``, bounded by ``[permutations] cores``.
     """
     from ...matrix import mantel
 
@@ -185,12 +186,14 @@ def mantel_step(ctx: Context) -> None:
 
 
 def partial_mantel_results(ctx: Context, *, spatial: bool = True,
-                           early_stop: int | None = None, n_jobs: int = 1) -> dict[str, Any]:
+                           early_stop: int | None = None,
+                           n_jobs: int | None = -1) -> dict[str, Any]:
     """The partial Mantel test of each hypothesis given every other predictor, as the report
     runs it (empty when there are no hypotheses or fewer than two predictors).
 
     ``spatial=False`` leaves out the spatially constrained null; ``early_stop`` and ``n_jobs``
     go to :func:`gradients.partial_mantel` (the survey planner re-runs the tests with them).
+    The report keeps the engine's default ``n_jobs=-1``, bounded by ``[permutations] cores``.
     """
     from ...matrix import partial_mantel
 
