@@ -31,7 +31,7 @@ from ._mantel_core import (
     pearson_side,
 )
 from ._precision import float32_bound, float32_note
-from ._spatial_check import NOT_CHECKED, spatial_check
+from ._spatial_check import NOT_CHECKED, PearsonForm, spatial_check
 
 __all__ = ["KENDALL_MAX_WORK", "METHODS", "MantelResult", "mantel"]
 
@@ -262,8 +262,11 @@ def mantel(
         notes.append(NOT_CHECKED)
     else:
         xv, yv = xv.astype(np.float64, copy=False), yv.astype(np.float64, copy=False)
+        form = (PearsonForm(pearson_side(yv, method, "y")[:, None])
+                if method == "pearson" else None)
         extra = spatial_check(xv, yv, _surrogate_statistic(yv, method), spatial_null, labels,
-                              n, n_resamples, n_surrogates, alternative, gen, n_jobs, notes)
+                              n, n_resamples, n_surrogates, alternative, gen, n_jobs, notes,
+                              form=form)
     return MantelResult(
         statistic=observed,
         pvalue=float(res.pvalue),

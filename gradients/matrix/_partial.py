@@ -25,7 +25,7 @@ from ._inputs import (
 from ._kernels import cross_products
 from ._mantel_core import check_common, early_stop_note, exact_note, run_engine
 from ._precision import FLOAT32_UNIT, float32_note
-from ._spatial_check import NOT_CHECKED, spatial_check
+from ._spatial_check import NOT_CHECKED, PearsonForm, spatial_check
 
 __all__ = ["PARTIAL_METHODS", "PERMUTE", "PartialMantelResult", "partial_mantel"]
 
@@ -318,8 +318,10 @@ n_surrogates
             e = resid(prep(surrogate))
             return float((e @ e_y) / (np.sqrt(e @ e) * ey_norm))
 
+        form = (PearsonForm(np.column_stack([e_y, resid.q]), ey_norm)
+                if method == "pearson" else None)
         extra = spatial_check(xv_raw, yv_raw, stat_of, spatial_null, labels, n, n_resamples,
-                              n_surrogates, alternative, gen, n_jobs, notes)
+                              n_surrogates, alternative, gen, n_jobs, notes, form=form)
     return PartialMantelResult(
         statistic=observed,
         pvalue=float(res.pvalue),

@@ -251,3 +251,28 @@ class MoranSurrogates:
     def distances(self, signs: np.ndarray) -> np.ndarray:
         """Condensed Euclidean distances among the surrogate coordinates."""
         return pdist(self.coordinates(signs))
+
+    def batch_coordinates(self, signs: np.ndarray) -> np.ndarray:
+        """Surrogate coordinates of a batch of sign vectors, shape ``(k, n, p)``.
+
+        One matrix product for many surrogates (``U [s_1 * P, s_2 * P, ...]``) in place of a
+        product per surrogate, each of which reads all of ``U``; the columns are taken in
+        chunks of at most :data:`_BATCH_COLUMNS` so that memory stays small when ``x`` has
+        many principal coordinates.
+        """
+        signs = np.atleast_2d(np.asarray(signs, dtype=np.float64))
+        k = signs.shape[0]
+        n_mem, p = self.projections.shape
+        out = np.empty((k, self.basis.shape[0], p))
+        step = max(1, _BATCH_COLUMNS // max(p, 1))
+        for lo in range(0, k, step):
+            part = signs[lo:lo + step]
+            w = (part[:, :, None] * self.projections[None]).transpose(1, 0, 2)
+            c = self.basis @ w.reshape(n_mem, -1)
+            out[lo:lo + len(part)] = c.reshape(-1, len(part), p).transpose(1, 0, 2)
+        out += self.mean
+        return out
+
+
+#: Most columns of one product in :meth:`MoranSurrogates.batch_coordinates`.
+_BATCH_COLUMNS = 2048

@@ -9,17 +9,22 @@ from __future__ import annotations
 import os
 from collections.abc import Callable, Mapping
 from concurrent.futures import ThreadPoolExecutor
+from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
+from scipy.spatial.distance import pdist
 
 from .._errors import InputError
 from ..permutation import PermutationResult, custom_plan, permutation_test
 from ._inputs import build_plan
+from ._kernels import numba_threads
 from ._mantel_core import mantel_pearson
 from ._spatial import MoranSurrogates, location_distances, principal_coordinates, spatial_weights
+from ._surrogate_kernels import surrogate_moments
 
-__all__ = ["NOT_CHECKED", "SPATIAL_ALPHA", "SPATIAL_CHECK_RESAMPLES", "spatial_check"]
+__all__ = ["NOT_CHECKED", "SPATIAL_ALPHA", "SPATIAL_CHECK_RESAMPLES", "PearsonForm",
+           "spatial_check"]
 
 #: Significance level of the check for spatial structure of each matrix.
 SPATIAL_ALPHA = 0.05
@@ -79,19 +84,49 @@ NOT_CHECKED = (
 )
 
 
+@dataclass(frozen=True, eq=False)
+class PearsonForm:
+    """A Pearson statistic of a surrogate ``d`` of ``x`` written through sums over pairs.
+
+    ``r = (d . f_0) / (norm * sqrt(|d - mean(d)|^2 - sum_{l >= 1} (d . f_l)^2))`` with the
+    columns ``f_l`` of ``fixed`` centred (orthogonal to the constant vector) and ``f_1 ...``
+    orthonormal and orthogonal to ``f_0``. The simple Mantel test is ``fixed = [y
+    standardised]``, ``norm = 1``; the partial test ``fixed = [e_y, Q]`` (residuals of ``y``
+    on the controls, an orthonormal basis of the centred controls), ``norm = |e_y|``: the
+    residual of ``d`` on the controls has the length under the square root and the same
+    product with ``e_y`` as ``d``.
+    """
+
+    fixed: np.ndarray  # (m, L)
+    norm: float = 1.0
+
+    def values(self, moments: np.ndarray) -> np.ndarray:
+        """Statistics from :func:`surrogate_moments` (one row per surrogate)."""
+        n_f = self.fixed.shape[1]
+        m = self.fixed.shape[0]
+        dots = moments[:, :n_f]
+        s1 = moments[:, n_f]
+        s2 = moments[:, n_f + 1]
+        spread = s2 - s1 * s1 / m - np.sum(dots[:, 1:] ** 2, axis=1)
+        return dots[:, 0] / (self.norm * np.sqrt(np.maximum(spread, 1e-300)))
+
+
 def spatial_check(x: np.ndarray, y: np.ndarray, stat_of: Callable[[np.ndarray], float],
                   spatial_null: object, labels: pd.Index, n: int, n_resamples: int,
                   n_surrogates: int, alternative: str, gen: object, n_jobs: int,
-                  notes: list[str]) -> dict[str, object]:
+                  notes: list[str], form: PearsonForm | None = None) -> dict[str, object]:
     """Spatial-structure check of both matrices and the spatially constrained p-value.
 
-    Appends the notes in words to ``notes`` and returns the result's spatial fields.
+    Appends the notes in words to ``notes`` and returns the result's spatial fields. With
+    ``form`` (Pearson statistics) the surrogates are evaluated by one compiled kernel
+    (:func:`surrogate_moments`); ``stat_of`` serves the other statistics.
     """
     geo = location_distances(spatial_null, labels)
     check = _structure_check({"x": x, "y": y}, geo, n, n_resamples, gen, n_jobs, labels)
     notes.extend(_structure_notes(check))
     obs_sp, res_sp, sp_notes = _spatial_null(x, stat_of, geo, n, n_surrogates=n_surrogates,
-                                             alternative=alternative, gen=gen, n_jobs=n_jobs)
+                                             alternative=alternative, gen=gen, n_jobs=n_jobs,
+                                             form=form)
     notes.extend(sp_notes)
     return {"pvalue_spatial": float(res_sp.pvalue), "statistic_spatial": obs_sp,
             "null_distribution_spatial": res_sp.null_distribution, "spatial_structure": check}
@@ -107,12 +142,17 @@ def _spatial_null(
     alternative: str,
     gen: np.random.Generator,
     n_jobs: int | None = 1,
+    form: PearsonForm | None = None,
 ) -> tuple[float, PermutationResult, list[str]]:
     """Moran spectral randomisation of ``x`` (via its principal coordinates).
 
-    The surrogates of a batch are evaluated on ``n_jobs`` threads (their products and
-    distances release the GIL); each is computed exactly as on one thread, in batch order, so
-    the result does not depend on ``n_jobs``.
+    With ``form``, a batch of surrogates is one matrix product for their coordinates and one
+    compiled pass over the pairs of sites for the sums the statistic needs, on the kernel
+    threads ``n_jobs`` allows (the engine's size rule decides for ``-1``); the observed
+    statistic goes through the same two steps. Otherwise the surrogates of a batch are
+    evaluated one by one on ``n_jobs`` threads (their products and distances release the
+    GIL). Either way each surrogate is computed exactly as on one thread, so the result does
+    not depend on ``n_jobs``.
     """
     coords, share = principal_coordinates(x)
     if coords.shape[1] == 0:
@@ -120,10 +160,25 @@ def _spatial_null(
                          "no spatial surrogates can be built.")
     w = spatial_weights(geo)
     msr = MoranSurrogates.from_coordinates(coords, w)
-    euclid = msr.distances(np.ones(msr.n_mem))
-    observed = float(statistic_of(euclid))
     plan = custom_plan(msr.draw, n, n_resamples=n_surrogates, rng=gen, scheme="custom",
                        description="Moran spectral randomisation of x")
+    task = "spatial null (Moran spectral randomisation)"
+    if form is not None:
+        identity = msr.batch_coordinates(np.ones((1, msr.n_mem)))
+        # the mean distance of the observed configuration: moments about it, not about 0
+        shift = float(np.mean(pdist(identity[0])))
+
+        def batch(signs: np.ndarray) -> np.ndarray:
+            return form.values(surrogate_moments(msr.batch_coordinates(signs), form.fixed,
+                                                 shift))
+
+        with numba_threads(n_jobs):
+            observed = float(batch(np.ones((1, msr.n_mem)))[0])
+            result = permutation_test(batch, plan, observed=observed, alternative=alternative,
+                                      task=task)
+        return observed, result, _null_notes(n_surrogates, msr, share, observed)
+    euclid = msr.distances(np.ones(msr.n_mem))
+    observed = float(statistic_of(euclid))
 
     workers = (os.cpu_count() or 1) if n_jobs is None or n_jobs < 0 else int(n_jobs)
 
@@ -137,7 +192,12 @@ def _spatial_null(
             return np.array(list(pool.map(one, signs)))
 
     result = permutation_test(statistic, plan, observed=observed, alternative=alternative,
-                              task="spatial null (Moran spectral randomisation)")
+                              task=task)
+    return observed, result, _null_notes(n_surrogates, msr, share, observed)
+
+
+def _null_notes(n_surrogates: int, msr: MoranSurrogates, share: float,
+                observed: float) -> list[str]:
     notes = [
         f"pvalue_spatial: {n_surrogates} surrogates of x by Moran spectral randomisation "
         "(Wagner & Dray 2015; for Mantel tests Crabot et al. 2019): random signs on x's "
@@ -153,5 +213,5 @@ def _spatial_null(
             "large negative eigenvalues consider testing sqrt(x), Euclidean for many "
             "ecological dissimilarities."
         )
-    return observed, result, notes
+    return notes
 
