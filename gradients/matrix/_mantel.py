@@ -262,7 +262,7 @@ def mantel(
         notes.append(NOT_CHECKED)
     else:
         xv, yv = xv.astype(np.float64, copy=False), yv.astype(np.float64, copy=False)
-        form = (PearsonForm(pearson_side(yv, method, "y")[:, None])
+        form = (PearsonForm(pearson_side(yv, method, "y")[None, :])
                 if method == "pearson" else None)
         extra = spatial_check(xv, yv, _surrogate_statistic(yv, method), spatial_null, labels,
                               n, n_resamples, n_surrogates, alternative, gen, n_jobs, notes,

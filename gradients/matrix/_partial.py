@@ -318,7 +318,7 @@ n_surrogates
             e = resid(prep(surrogate))
             return float((e @ e_y) / (np.sqrt(e @ e) * ey_norm))
 
-        form = (PearsonForm(np.column_stack([e_y, resid.q]), ey_norm)
+        form = (PearsonForm(np.vstack([e_y, resid.q.T]), ey_norm)
                 if method == "pearson" else None)
         extra = spatial_check(xv_raw, yv_raw, stat_of, spatial_null, labels, n, n_resamples,
                               n_surrogates, alternative, gen, n_jobs, notes, form=form)

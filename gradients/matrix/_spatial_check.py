@@ -89,21 +89,20 @@ class PearsonForm:
     """A Pearson statistic of a surrogate ``d`` of ``x`` written through sums over pairs.
 
     ``r = (d . f_0) / (norm * sqrt(|d - mean(d)|^2 - sum_{l >= 1} (d . f_l)^2))`` with the
-    columns ``f_l`` of ``fixed`` centred (orthogonal to the constant vector) and ``f_1 ...``
-    orthonormal and orthogonal to ``f_0``. The simple Mantel test is ``fixed = [y
-    standardised]``, ``norm = 1``; the partial test ``fixed = [e_y, Q]`` (residuals of ``y``
+    rows ``f_l`` of ``rows`` centred (orthogonal to the constant vector) and ``f_1 ...``
+    orthonormal and orthogonal to ``f_0``. The simple Mantel test is ``rows = [y
+    standardised]``, ``norm = 1``; the partial test ``rows = [e_y, Q']`` (residuals of ``y``
     on the controls, an orthonormal basis of the centred controls), ``norm = |e_y|``: the
     residual of ``d`` on the controls has the length under the square root and the same
     product with ``e_y`` as ``d``.
     """
 
-    fixed: np.ndarray  # (m, L)
+    rows: np.ndarray  # (L, m), C-ordered float64
     norm: float = 1.0
 
     def values(self, moments: np.ndarray) -> np.ndarray:
         """Statistics from :func:`surrogate_moments` (one row per surrogate)."""
-        n_f = self.fixed.shape[1]
-        m = self.fixed.shape[0]
+        n_f, m = self.rows.shape
         dots = moments[:, :n_f]
         s1 = moments[:, n_f]
         s2 = moments[:, n_f + 1]
@@ -169,7 +168,7 @@ def _spatial_null(
         shift = float(np.mean(pdist(identity[0])))
 
         def batch(signs: np.ndarray) -> np.ndarray:
-            return form.values(surrogate_moments(msr.batch_coordinates(signs), form.fixed,
+            return form.values(surrogate_moments(msr.batch_coordinates(signs), form.rows,
                                                  shift))
 
         with numba_threads(n_jobs):

@@ -107,17 +107,18 @@ def _moments(zt: np.ndarray, ft: np.ndarray, shift: float) -> np.ndarray:  # pra
     return out
 
 
-def surrogate_moments(z: np.ndarray, f: np.ndarray, shift: float) -> np.ndarray:
+def surrogate_moments(z: np.ndarray, rows: np.ndarray, shift: float) -> np.ndarray:
     """Sums over the pairs of sites of each configuration's distances.
 
     Parameters
     ----------
     z : ndarray, shape (k, n, p)
         ``k`` configurations of the ``n`` sites in ``p`` coordinates.
-    f : ndarray, shape (m, L)
-        Fixed condensed vectors (``m = n (n - 1) / 2``, scipy's condensed order).
+    rows : ndarray, shape (L, m)
+        Fixed condensed vectors, one per row (``m = n (n - 1) / 2``, scipy's condensed
+        order); C-ordered float64 rows are used without a copy.
     shift : float
-        Subtracted from every distance in the first two sums.
+        Subtracted from every distance in the last two sums.
 
     Returns
     -------
@@ -126,10 +127,9 @@ def surrogate_moments(z: np.ndarray, f: np.ndarray, shift: float) -> np.ndarray:
         ``sum (d - shift)**2``.
     """
     z = np.asarray(z, dtype=np.float64)
-    f = np.asarray(f, dtype=np.float64)
-    if z.ndim != 3 or f.ndim != 2 or f.shape[0] != z.shape[1] * (z.shape[1] - 1) // 2:
-        raise ValueError("surrogate_moments: z must be (k, n, p) and f (n(n-1)/2, L)")
+    rows = np.ascontiguousarray(rows, dtype=np.float64)
+    if z.ndim != 3 or rows.ndim != 2 or rows.shape[1] != z.shape[1] * (z.shape[1] - 1) // 2:
+        raise ValueError("surrogate_moments: z must be (k, n, p) and rows (L, n(n-1)/2)")
     if z.shape[0] == 0:
-        return np.zeros((0, f.shape[1] + 2))
-    return _moments(np.ascontiguousarray(z.transpose(0, 2, 1)), np.ascontiguousarray(f.T),
-                    float(shift))
+        return np.zeros((0, rows.shape[0] + 2))
+    return _moments(np.ascontiguousarray(z.transpose(0, 2, 1)), rows, float(shift))

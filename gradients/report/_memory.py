@@ -16,6 +16,8 @@ import os
 from dataclasses import dataclass
 from typing import Any
 
+import numpy as np
+
 from .._errors import InputError
 from ..matrix._memory import mantel_memory, partial_mantel_memory
 
@@ -64,12 +66,13 @@ def run_memory(settings: dict[str, Any], n_sites: int, *,
     spatial = geo and not settings.get("design.strata")
     kept = (1 + hyp + int(geo) + int(cov)) * 8 * m
     steps = {"ordination and the other steps": SQUARE_ARRAYS * 8 * n * n}
+    dtype = np.float32 if settings.get("permutations.precision") == "float32" else np.float64
     if settings.get("analyses.mantel", True) and hyp + int(geo) + int(cov):
-        steps["mantel"] = mantel_memory(n, n_resamples=perms, spatial=spatial)
+        steps["mantel"] = mantel_memory(n, n_resamples=perms, spatial=spatial, dtype=dtype)
     controls = hyp - 1 + int(geo) + int(cov)
     if settings.get("analyses.partial_mantel", True) and hyp and controls >= 1:
         steps["partial_mantel"] = partial_mantel_memory(n, controls, n_resamples=perms,
-                                                        spatial=spatial)
+                                                        spatial=spatial, dtype=dtype)
     if settings.get("analyses.regression", True):
         p = hyp + int(geo) + int(cov)
         steps["regression"] = 3 * (p + 1) * 8 * m
@@ -112,11 +115,16 @@ def check_memory(project: Any, survey: Any, *, available: int | None = None) -> 
     free = available_memory() if available is None else available
     if free is None or estimate.total <= HEADROOM * free:
         return estimate
+    single = run_memory({**project.settings, "permutations.precision": "float32"}, n,
+                        n_hypotheses=len(project.hypotheses), n_variables=numeric)
+    precision = (
+        "store the Mantel tests' work arrays in float32 (`[permutations] precision = "
+        f"\"float32\"`: about {single.total / 2.0**30:.1f} GiB; docs/scaling.md, 'Large "
+        "surveys'); " if single.total < 0.95 * estimate.total else "")
     raise InputError(
         f"This run of {n} sites needs {estimate.describe()}, more than the "
-        f"{free / 2.0**30:.1f} GiB this machine has free. Ways to fit: run the Mantel tests from "
-        "Python with the distances stored in float32, which halves the Mantel family's share "
-        "(docs/scaling.md, 'Large surveys'); switch off the largest step in [analyses]; or "
+        f"{free / 2.0**30:.1f} GiB this machine has free. Ways to fit: {precision}switch off "
+        "the largest step in [analyses]; or "
         "a machine, or cluster workers ([permutations] cluster), with more memory "
         "(each worker holds the matrices of the test it runs; see docs/scaling.md). Fewer "
         "permutations ([permutations] count) shorten a long run but do not lower its peak, "

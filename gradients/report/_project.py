@@ -224,6 +224,10 @@ SCHEMA: dict[str, dict[str, Key]] = {
                      "engine's size rule) or a whole number; the tables do not depend on it."),
         "cluster": Key("str", None, "Address of a Dask scheduler, e.g. \"tcp://10.0.0.5:8786\": "
                        "permutation batches then run on its workers (needs the `dask` extra)."),
+        "precision": Key("choice", "float64", "Storage of the Mantel and partial Mantel tests' "
+                         "work arrays: \"float64\", or \"float32\" for large surveys (a third "
+                         "of the memory; the change in r is bounded and said in the notes).",
+                         choices=("float64", "float32")),
     },
     "plan": {  # `gradients plan`: survey power by simulation (gradients/planning)
         "sites": Key("counts", (20, 40, 60, 80), "Numbers of sites of the planned surveys "

@@ -31,7 +31,7 @@ def test_moments_equal_sums_over_scipy_distances(k: int, n: int, p: int, n_f: in
     z = rng.normal(size=(k, n, p))
     f = rng.normal(size=(n * (n - 1) // 2, n_f))
     shift = 0.3
-    got = surrogate_moments(z, f, shift)
+    got = surrogate_moments(z, f.T, shift)
     for b in range(k):
         d = pdist(z[b])  # reference: scipy
         want = np.concatenate([d @ f, [np.sum(d - shift), np.sum((d - shift) ** 2)]])
@@ -41,7 +41,7 @@ def test_moments_equal_sums_over_scipy_distances(k: int, n: int, p: int, n_f: in
 def test_moments_do_not_depend_on_threads_or_batch_split() -> None:
     rng = np.random.default_rng(3)
     z = rng.normal(size=(11, 60, 3))
-    f = rng.normal(size=(60 * 59 // 2, 2))
+    f = rng.normal(size=(2, 60 * 59 // 2))
     with numba_threads(1):
         one = surrogate_moments(z, f, 1.0)
     with numba_threads(2):
@@ -60,7 +60,7 @@ def test_pearson_form_is_the_simple_and_the_partial_correlation() -> None:
     # simple: Pearson r of d and y (numpy's corrcoef as the reference)
     ys = (y - y.mean()) / np.linalg.norm(y - y.mean())
     moments = np.concatenate([d @ ys[:, None], [np.sum(d - 1.0), np.sum((d - 1.0) ** 2)]])
-    simple = PearsonForm(ys[:, None]).values(moments[None])[0]
+    simple = PearsonForm(ys[None, :]).values(moments[None])[0]
     assert simple == pytest.approx(np.corrcoef(d, y)[0, 1], rel=1e-12)
     # partial: correlation of the least-squares residuals of d and y on [1, controls]
     design = np.column_stack([np.ones(m), controls])
@@ -70,7 +70,7 @@ def test_pearson_form_is_the_simple_and_the_partial_correlation() -> None:
     e_y = resid(y)
     fixed = np.column_stack([e_y, q])
     moments = np.concatenate([d @ fixed, [np.sum(d - 1.0), np.sum((d - 1.0) ** 2)]])
-    partial = PearsonForm(fixed, float(np.linalg.norm(e_y))).values(moments[None])[0]
+    partial = PearsonForm(fixed.T.copy(), float(np.linalg.norm(e_y))).values(moments[None])[0]
     assert partial == pytest.approx(np.corrcoef(resid(d), e_y)[0, 1], rel=1e-10)
 
 

@@ -31,6 +31,21 @@ def _spatial_kwargs(ctx: Context) -> dict[str, object]:
     return {"spatial_null": geo, "n_surrogates": ctx.n_resamples}
 
 
+def _precision(ctx: Context) -> type:
+    """The storage of the Mantel tests' work arrays (``[permutations] precision``)."""
+    return np.float32 if ctx.settings.get("permutations.precision") == "float32" else np.float64
+
+
+def _precision_sentence(ctx: Context) -> str:
+    """The methods' words for float32 storage (empty for the default)."""
+    if _precision(ctx) is np.float64:
+        return ""
+    return (" The tests' work arrays were stored in single precision (float32; products and "
+            "sums in double precision); the notes give the bound on the change in r and say "
+            "whether any permuted value came near enough to the observed one to move a "
+            "p-value.")
+
+
 def _spatial_reason(ctx: Context, name: str) -> str:
     """Why the report ran no spatially constrained test for ``name``, in project-file words."""
     if name == "geography":
@@ -142,7 +157,8 @@ def mantel_results(ctx: Context, *, spatial: bool = True, early_stop: int | None
         extra = _spatial_kwargs(ctx) if spatial and name != "geography" else {}
         results[name] = mantel(d, community, n_resamples=ctx.n_resamples,
                                rng=ctx.rng(f"mantel:{name}"), strata=_strata(ctx),
-                               early_stop=early_stop, n_jobs=n_jobs, **extra)
+                               early_stop=early_stop, n_jobs=n_jobs, dtype=_precision(ctx),
+                               **extra)
     return results
 
 
@@ -182,7 +198,7 @@ def mantel_step(ctx: Context) -> None:
             f"{n} r = {r.statistic:.3f} ({_fmt_p(r.pvalue)}"
             + (f", spatially constrained {_fmt_p(r.pvalue_spatial)}"
                if r.pvalue_spatial is not None else "") + ")"
-            for n, r in results.items()) + ".")
+            for n, r in results.items()) + "." + _precision_sentence(ctx))
 
 
 def partial_mantel_results(ctx: Context, *, spatial: bool = True,
@@ -209,7 +225,8 @@ def partial_mantel_results(ctx: Context, *, spatial: bool = True,
         results[name] = partial_mantel(d, community, controls, permute="residuals",
                                        n_resamples=ctx.n_resamples,
                                        rng=ctx.rng(f"partial:{name}"), strata=_strata(ctx),
-                                       early_stop=early_stop, n_jobs=n_jobs, **extra)
+                                       early_stop=early_stop, n_jobs=n_jobs,
+                                       dtype=_precision(ctx), **extra)
     return results
 
 
@@ -246,7 +263,7 @@ def partial_mantel_step(ctx: Context) -> None:
         + (" and geographic distance" if "geography" in preds else "")
         + ", permuting residuals of the reduced model (Legendre 2000), gave " + "; ".join(
             f"{n} r = {r.statistic:.3f} ({_fmt_p(r.pvalue)})" for n, r in results.items())
-        + ".")
+        + "." + _precision_sentence(ctx))
 
 
 def regression_step(ctx: Context) -> None:
