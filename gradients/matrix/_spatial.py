@@ -131,6 +131,16 @@ def _coordinates_frame(frame: pd.DataFrame, labels: pd.Index) -> np.ndarray:
 
 
 def spatial_weights(distances: np.ndarray) -> np.ndarray:
+    """Smooth spatial weights (see :func:`_spatial_weights`), computed once per geography.
+
+    Every spatially constrained test of a run builds them from the same distances (the
+    minimum spanning tree of ``n`` sites sorts all ``n (n - 1) / 2`` pairs); the result is
+    shared read-only (:mod:`gradients.distance._recent`).
+    """
+    return _RECENT_WEIGHTS(_spatial_weights, np.asarray(distances, dtype=np.float64))
+
+
+def _spatial_weights(distances: np.ndarray) -> np.ndarray:
     """Smooth spatial weights: ``w_ij = exp(-(d_ij / (2 t))^2)``, ``t`` the longest MST edge.
 
     ``t``, the longest edge of the minimum spanning tree of the sites, is the smallest
@@ -163,6 +173,8 @@ def spatial_weights(distances: np.ndarray) -> np.ndarray:
 #: :mod:`gradients.distance._recent`).
 #: Moran eigenvector maps of the last spatial weights (one per run: one geography).
 _RECENT_MAPS = Recent(1)
+#: The spatial weights of the last geography.
+_RECENT_WEIGHTS = Recent(1)
 #: Principal coordinates of the last few matrices given as ``x`` (one per hypothesis).
 _RECENT_COORDINATES = Recent(8)
 
