@@ -98,23 +98,93 @@ def _cross_one(x: np.ndarray, y: np.ndarray, orders: np.ndarray) -> np.ndarray: 
 
 
 @njit(parallel=True, **_OPTIONS)
-def _cross_many(x: np.ndarray, y: np.ndarray, orders: np.ndarray) -> np.ndarray:  # pragma: no cover
+def _cross_many(xt: np.ndarray, y: np.ndarray,
+                orders: np.ndarray) -> np.ndarray:  # pragma: no cover
+    # ``xt`` is x transposed, (q, m) C-ordered, so that each column streams contiguously. A pass
+    # over the triangle serves four orders and four columns with sixteen scalar accumulators
+    # that stay in registers: each gathered value of y is used for four columns and each value
+    # of x for four orders. Wider inputs take one pass per group of four columns; a last,
+    # partial group of orders or columns repeats the final one (it writes the same value).
+    # No fastmath and one running sum per (order, column) in pair order: exactly the sums of a
+    # plain loop, so results do not depend on the grouping, the batch split or thread count.
+    # (Fused multiply-adds would change those bits for a gain of about 15% here.)
     k, n = orders.shape
-    q = x.shape[1]
+    q = xt.shape[0]
     out = np.empty((k, q))
-    for b in prange(k):
-        p = orders[b]
-        acc = np.zeros(q)
+    order_groups = (k + 3) // 4
+    col_groups = (q + 3) // 4
+    for g in prange(order_groups * col_groups):
+        go = g // col_groups
+        b0 = 4 * go
+        b1 = min(b0 + 1, k - 1)
+        b2 = min(b0 + 2, k - 1)
+        b3 = min(b0 + 3, k - 1)
+        c0 = 4 * (g - go * col_groups)
+        c1 = min(c0 + 1, q - 1)
+        c2 = min(c0 + 2, q - 1)
+        c3 = min(c0 + 3, q - 1)
+        p0 = orders[b0]
+        p1 = orders[b1]
+        p2 = orders[b2]
+        p3 = orders[b3]
+        x0 = xt[c0]
+        x1 = xt[c1]
+        x2 = xt[c2]
+        x3 = xt[c3]
+        a00 = a01 = a02 = a03 = 0.0  # a<order><column>
+        a10 = a11 = a12 = a13 = 0.0
+        a20 = a21 = a22 = a23 = 0.0
+        a30 = a31 = a32 = a33 = 0.0
         t = 0
         for i in range(n - 1):
-            row = y[p[i]]
+            r0 = y[p0[i]]
+            r1 = y[p1[i]]
+            r2 = y[p2[i]]
+            r3 = y[p3[i]]
+            off = t - i - 1  # x[off + j] is x_ij in condensed order
             for j in range(i + 1, n):
-                v = np.float64(row[p[j]])
-                for c in range(q):
-                    acc[c] += x[t, c] * v
-                t += 1
-        for c in range(q):
-            out[b, c] = acc[c]
+                # float64 products even for float32 storage (exact; see _cross_one)
+                v0 = np.float64(r0[p0[j]])
+                v1 = np.float64(r1[p1[j]])
+                v2 = np.float64(r2[p2[j]])
+                v3 = np.float64(r3[p3[j]])
+                e0 = np.float64(x0[off + j])
+                e1 = np.float64(x1[off + j])
+                e2 = np.float64(x2[off + j])
+                e3 = np.float64(x3[off + j])
+                a00 += e0 * v0
+                a01 += e1 * v0
+                a02 += e2 * v0
+                a03 += e3 * v0
+                a10 += e0 * v1
+                a11 += e1 * v1
+                a12 += e2 * v1
+                a13 += e3 * v1
+                a20 += e0 * v2
+                a21 += e1 * v2
+                a22 += e2 * v2
+                a23 += e3 * v2
+                a30 += e0 * v3
+                a31 += e1 * v3
+                a32 += e2 * v3
+                a33 += e3 * v3
+            t += n - i - 1
+        out[b0, c0] = a00
+        out[b0, c1] = a01
+        out[b0, c2] = a02
+        out[b0, c3] = a03
+        out[b1, c0] = a10
+        out[b1, c1] = a11
+        out[b1, c2] = a12
+        out[b1, c3] = a13
+        out[b2, c0] = a20
+        out[b2, c1] = a21
+        out[b2, c2] = a22
+        out[b2, c3] = a23
+        out[b3, c0] = a30
+        out[b3, c1] = a31
+        out[b3, c2] = a32
+        out[b3, c3] = a33
     return out
 
 
@@ -124,7 +194,9 @@ def cross_products(x: np.ndarray, y: np.ndarray, orders: np.ndarray) -> np.ndarr
     Parameters
     ----------
     x : ndarray, shape (m,) or (m, q)
-        Fixed condensed vector(s), ``m = n (n - 1) / 2``, squareform order.
+        Fixed condensed vector(s), ``m = n (n - 1) / 2``, squareform order. A 2-D ``x`` in
+        Fortran order (``np.asfortranarray``) is used without a copy; any other is copied
+        into that layout on each call.
     y : ndarray, shape (n, n)
         Symmetric square matrix (C order) whose rows and columns are permuted. ``x`` and
         ``y`` are float64, or both float32 to halve their memory; the products and sums
@@ -139,7 +211,7 @@ def cross_products(x: np.ndarray, y: np.ndarray, orders: np.ndarray) -> np.ndarr
     orders = _unsigned(orders)
     if x.ndim == 1:
         return _cross_one(x, y, orders)
-    return _cross_many(np.ascontiguousarray(x), y, orders)
+    return _cross_many(np.ascontiguousarray(x.T), y, orders)
 
 
 @njit(parallel=True, **_OPTIONS)

@@ -281,7 +281,8 @@ n_surrogates
 
     v = (xv - xv.mean()) if permute == "raw" else e_x
     vv = float(v @ v)
-    fixed = np.column_stack([e_y, resid.q]).astype(precision, copy=False)
+    # column-major: the kernel streams each column, and takes this layout without a copy
+    fixed = np.asfortranarray(np.column_stack([e_y, resid.q]), dtype=precision)
     big = square_of(v, precision)
     unexplained = [1.0]  # smallest share of a permuted v left by the controls (float32 note)
 

@@ -194,11 +194,12 @@ def matrix_regression(
     f_stat = float((r2 / q) / max(1 - r2, 1e-300) * df_resid)
     t_signed = np.sign(b_obs) * obs[1:]
     big = square_of(yc)
+    xcols = np.asfortranarray(xc)  # the kernel's layout, so batches need no copy
 
     plan = build_plan(n, scheme=scheme, strata=strata,
                       n_resamples=n_resamples, rng=gen, labels=labels)
     with numba_threads(n_jobs):
-        res = permutation_test(lambda orders: from_cross(cross_products(xc, big, orders)),
+        res = permutation_test(lambda orders: from_cross(cross_products(xcols, big, orders)),
                                plan, observed=obs, alternative="greater",
                                task="matrix regression")
     pvals = np.asarray(res.pvalue, dtype=np.float64)

@@ -98,6 +98,29 @@ def test_exact_kendall_n6_matches_listing_with_scipy():
     assert res.pvalue == pytest.approx(np.mean(listed >= res.statistic - 1e-12), abs=1e-15)
 
 
+def test_many_column_kernel_any_width_layout_and_batch_split():
+    # The multi-column kernel works in groups of four orders and four columns: every width and
+    # batch size (partial groups included) must give the textbook values, and the same bits
+    # whatever the memory layout of x, the split of the orders into batches or the storage.
+    rng = np.random.default_rng(12)
+    n = 23
+    big = squareform(pdist(rng.normal(size=(n, 2))))
+    orders = rng.permuted(np.broadcast_to(np.arange(n), (11, n)), axis=1)
+    iu = np.triu_indices(n, k=1)
+    permuted = np.array([big[np.ix_(p, p)][iu] for p in orders])
+    for q in range(1, 10):
+        many = rng.normal(size=(iu[0].size, q))
+        whole = cross_products(many, big, orders)
+        np.testing.assert_allclose(whole, permuted @ many, rtol=1e-12)
+        assert np.array_equal(cross_products(np.asfortranarray(many), big, orders), whole)
+        split = np.vstack([cross_products(many, big, part) for part in (orders[:1], orders[1:6],
+                                                                          orders[6:])])
+        assert np.array_equal(split, whole)
+        f32 = cross_products(many.astype(np.float32), big.astype(np.float32), orders)
+        assert f32.dtype == np.float64
+        np.testing.assert_allclose(f32, permuted @ many, rtol=1e-5, atol=1e-5)
+
+
 def test_kernels_equal_the_textbook_one_permutation_formula():
     # Two ways of computing the same thing must agree (common practice): the batched kernels against
     # building each permuted matrix with np.ix_ for random orders.
