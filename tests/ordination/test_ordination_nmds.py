@@ -13,7 +13,7 @@ from scipy.spatial.distance import pdist
 from gradients import InputError
 from gradients.distance import DistanceMatrix
 from gradients.ordination import NMDSResult, nmds, stress_verdict
-from gradients.ordination._kernels import MonotoneOrder, StressFunction
+from gradients.ordination._kernels import MonotoneOrder, StressFunction, _sort_ties
 
 
 def _labels(n: int) -> list[str]:
@@ -94,6 +94,36 @@ def test_gradient_matches_finite_differences():
     h = 1e-6
     numeric = np.array([(f(x + h * e)[0] - f(x - h * e)[0]) / (2 * h) for e in np.eye(20)])
     np.testing.assert_allclose(grad, numeric, atol=1e-7)
+
+
+@pytest.mark.parametrize("scramble", [False, True])
+def test_tie_sort_is_a_stable_sort_of_each_block(scramble):
+    # the result must not depend on which sort runs (insertion, or merge sort after too many
+    # moves): each block ends as a stable sort of its previous order, equal distances included
+    rng = np.random.default_rng(7)
+    sizes = [2, 3, 31, 32, 33, 64, 65, 100, 257, 1000, 1500]
+    bounds, pos = [], 0
+    for size in sizes:
+        pos += 1  # an untied pair between blocks
+        bounds += [pos, pos + size]
+        pos += size
+    blocks = np.array(bounds, dtype=np.int64)
+    ds = rng.integers(0, 40, size=pos + 1).astype(np.float64)  # many equal distances
+    if not scramble:  # nearly sorted, as left by the previous evaluation
+        for lo, hi in blocks.reshape(-1, 2):
+            ds[lo:hi] = np.sort(ds[lo:hi])
+            swap = rng.integers(lo, hi - 1, size=max(1, (hi - lo) // 20))
+            ds[swap], ds[swap + 1] = ds[swap + 1], ds[swap].copy()
+    pairs = np.arange(ds.size, dtype=np.uint32)
+    want_d, want_p = ds.copy(), pairs.copy()
+    for lo, hi in blocks.reshape(-1, 2):
+        idx = np.argsort(ds[lo:hi], kind="stable")
+        want_d[lo:hi] = ds[lo:hi][idx]
+        want_p[lo:hi] = pairs[lo:hi][idx]
+    longest = max(sizes)
+    _sort_ties(ds, pairs, blocks, np.empty(longest), np.empty(longest, dtype=np.uint32))
+    np.testing.assert_array_equal(ds, want_d)
+    np.testing.assert_array_equal(pairs, want_p)
 
 
 def test_recovers_configuration_from_monotone_dissimilarities():
