@@ -1,8 +1,9 @@
 """Will a run fit in memory? An estimate of a project's peak, made before the run starts.
 
 The run keeps every distance matrix it builds (the community, one per hypothesis, the
-covariables and geography: one condensed float64 vector each) and, one step at a time, the
-work arrays of the step that is running. The peak is the kept matrices plus the largest
+covariables and geography: one condensed float64 vector each), the results and figures that
+hold every pair of sites until the report is written (``PAIR_RESULTS``) and, one step at a
+time, the work arrays of the step that is running. The peak is the kept matrices plus the largest
 step, plus the interpreter with the suite's libraries, kernels and figures (``BASELINE``).
 The Mantel-family counts come from :mod:`gradients.matrix._memory`; the other steps hold a
 few square ``n x n`` arrays (ordination, PERMANOVA, the spatial eigenvector maps), counted
@@ -24,9 +25,22 @@ from ..matrix._memory import mantel_memory, partial_mantel_memory
 __all__ = ["RunMemory", "available_memory", "check_memory", "run_memory"]
 
 #: Resident size of a run before its matrices count: the interpreter with the libraries
-#: loaded (283 MiB measured on Linux), compiled kernels, figures and tables; the demo's whole
-#: run (60 sites) peaked at 517 MiB.
-BASELINE = 500 * 2**20
+#: loaded (260-330 MiB measured on Linux with the survey read), compiled kernels, figures and
+#: tables; the demo's whole run (60 sites) peaked at 517 MiB.
+BASELINE = 450 * 2**20
+#: Bytes per pair of sites held from their step until the report is written: the NMDS
+#: result's Shepard table and the figures drawn from every pair (the Shepard diagram, the
+#: distance decay). Calibrated on whole runs of the template project (`benchmarks/
+#: bench_report.py`, partition, ranking and groups off): peaks of 722 MiB at 1,000 sites and
+#: 1,667 MiB at 2,000, which the estimate meets within 6 %; the 5,000-site run checks it
+#: (docs/scaling.md, "Whole runs").
+PAIR_RESULTS = 390
+#: The NMDS step's work arrays per pair of sites beyond what it keeps (the pairs in
+#: dissimilarity order, each running start's workspace, the final fit), and its fixed part:
+#: measured peaks of 196 MiB at 1,000 sites and 616 MiB at 2,000 with the kept Shepard table
+#: and figure, which ``PAIR_RESULTS`` counts.
+NMDS_PER_PAIR = 180
+NMDS_FIXED = 40 * 2**20
 #: Square float64 arrays held at once by the steps other than the Mantel family.
 SQUARE_ARRAYS = 8
 #: I-spline columns per variable of the ranking step's turnover model (its default).
@@ -48,9 +62,10 @@ class RunMemory:
 
     def describe(self) -> str:
         gib = 2.0**30
+        step = self.steps[self.largest_step] / gib
         return (f"about {self.total / gib:.1f} GiB at its peak ({self.kept / gib:.1f} GiB of "
-                f"distance matrices kept through the run, {self.steps[self.largest_step] / gib:.1f}"
-                f" GiB for the largest step, {self.largest_step})")
+                "distance matrices and pairwise results kept through the run, "
+                f"{step:.1f} GiB for the largest step, {self.largest_step})")
 
 
 def run_memory(settings: dict[str, Any], n_sites: int, *,
@@ -64,8 +79,10 @@ def run_memory(settings: dict[str, Any], n_sites: int, *,
     geo = bool(settings.get("inputs.locations"))
     cov = bool(settings.get("design.covariables"))
     spatial = geo and not settings.get("design.strata")
-    kept = (1 + hyp + int(geo) + int(cov)) * 8 * m
+    kept = (1 + hyp + int(geo) + int(cov)) * 8 * m + PAIR_RESULTS * m
     steps = {"ordination and the other steps": SQUARE_ARRAYS * 8 * n * n}
+    if settings.get("analyses.ordination", "nmds") == "nmds":
+        steps["ordination (NMDS)"] = NMDS_FIXED + NMDS_PER_PAIR * m
     dtype = np.float32 if settings.get("permutations.precision") == "float32" else np.float64
     if settings.get("analyses.mantel", True) and hyp + int(geo) + int(cov):
         steps["mantel"] = mantel_memory(n, n_resamples=perms, spatial=spatial, dtype=dtype)

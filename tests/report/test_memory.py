@@ -28,8 +28,10 @@ def test_run_estimate_adds_the_kept_matrices_to_the_largest_step(tmp_path):
     n = 4000
     est = _memory.run_memory(project.settings, n, n_hypotheses=3)
     m = n * (n - 1) // 2
-    # community + 3 hypotheses + geography, float64 condensed (no covariables in the template)
-    assert est.kept == 5 * 8 * m
+    # community + 3 hypotheses + geography, float64 condensed (no covariables in the
+    # template), and the pairwise results kept until the report is written
+    assert est.kept == 5 * 8 * m + _memory.PAIR_RESULTS * m
+    assert est.steps["ordination (NMDS)"] == _memory.NMDS_FIXED + _memory.NMDS_PER_PAIR * m
     # the partial Mantel test controls for the two other hypotheses and geography
     assert est.steps["partial_mantel"] == partial_mantel_memory(n, 3, n_resamples=999,
                                                                 spatial=True)
