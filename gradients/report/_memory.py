@@ -30,11 +30,11 @@ __all__ = ["RunMemory", "available_memory", "check_memory", "run_memory"]
 BASELINE = 450 * 2**20
 #: Bytes per pair of sites held from their step until the report is written: the NMDS
 #: result's Shepard table and the figures drawn from every pair (the Shepard diagram, the
-#: distance decay). Calibrated on whole runs of the template project (`benchmarks/
-#: bench_report.py`, partition, ranking and groups off): peaks of 722 MiB at 1,000 sites and
-#: 1,667 MiB at 2,000, which the estimate meets within 6 %; the 5,000-site run checks it
+#: distance decay). Fitted to whole runs of the template project (`benchmarks/
+#: bench_report.py`, partition, ranking and groups off): peaks of 722 MiB at 1,000 sites,
+#: 1,667 MiB at 2,000 and 5,806 MiB at 5,000, which the estimate meets within 14 %
 #: (docs/scaling.md, "Whole runs").
-PAIR_RESULTS = 390
+PAIR_RESULTS = 270
 #: The NMDS step's work arrays per pair of sites beyond what it keeps (the pairs in
 #: dissimilarity order, each running start's workspace, the final fit), and its fixed part:
 #: measured peaks of 196 MiB at 1,000 sites and 616 MiB at 2,000 with the kept Shepard table
