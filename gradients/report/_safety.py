@@ -57,10 +57,16 @@ def neutralise_text(value: object) -> object:
 def neutralise_frame(frame: pd.DataFrame, *, index: bool = True) -> pd.DataFrame:
     """A copy of ``frame`` ready for CSV/xlsx: index made a column, text cells neutralised.
 
+    An unnamed default index (row numbers 0, 1, 2, ...) is dropped rather than written as a
+    column called ``index``.
+
     The column names and (when ``index``) the index labels are neutralised too; numeric columns
     are left as they are.
     """
-    out = frame.reset_index() if index else frame.reset_index(drop=True)
+    # an unnamed 0, 1, 2, ... index holds row numbers, not keys: it is not written
+    numbers = (isinstance(frame.index, pd.RangeIndex) and frame.index.name is None
+               and frame.index.start == 0 and frame.index.step == 1)
+    out = frame.reset_index() if index and not numbers else frame.reset_index(drop=True)
     out.columns = [str(neutralise_text(str(c))) for c in out.columns]
     for col in out.columns:
         series = out[col]

@@ -59,6 +59,18 @@ def test_workbook_has_a_sheet_per_table(demo_report: Path) -> None:
     assert wb.sheetnames[0] == "contents" and len(wb.sheetnames) == n_csv + 1
 
 
+def test_tables_are_keyed_by_what_their_rows_are(demo_report: Path) -> None:
+    # common practice for tidy tables: a row is named by its own keys, never by a row number
+    import pandas as pd
+
+    for path in sorted((demo_report / "tables").glob("*.csv")):
+        head = pd.read_csv(path, nrows=0).columns
+        assert head[0] not in ("index", "Unnamed: 0"), path.name
+    centroids = pd.read_csv(demo_report / "tables" / "factor_centroids.csv")
+    assert list(centroids.columns[:2]) == ["factor", "level"]
+    assert not centroids.duplicated(["factor", "level"]).any()
+
+
 def test_geopackage_has_sites_and_scores(demo_report: Path) -> None:
     import geopandas as gpd
 

@@ -168,7 +168,8 @@ def factors_step(ctx: Context) -> None:
     table = fit.table.copy()
     table.index.name = "factor"
     sec.tables["factor_fits"] = table
-    sec.tables["factor_centroids"] = fit.centroids
+    # one row per class, named by its variable and level (not by row number)
+    sec.tables["factor_centroids"] = fit.centroids.set_index(["factor", "level"])
     sec.shown += ["factor_fits", "factor_centroids"]
     sec.notes.extend(fit.notes)
     ctx.sections.append(sec)
